@@ -1,0 +1,109 @@
+//! One flat error enum for the whole kernel.
+//!
+//! Raw configuration is checked once, when the validated types are built;
+//! every way it can be wrong is a distinct variant with a fixed message. The
+//! tick itself never fails: faults met while stepping (a negative flow, an
+//! empty vessel) are clamped and reported as [`crate::StatusFlags`].
+
+use core::fmt;
+
+/// Everything that can be wrong with what the kernel is given.
+///
+/// Variant names start with the phase or object they concern. Each carries a
+/// fixed message ([`Error::message`]); where it concerns an indexed item (an
+/// inlet, a reaction, a species), the index is carried so the host can name
+/// the field in the user's file.
+#[non_exhaustive]
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Error {
+    /// A vessel dimension is zero, negative, NaN or infinite.
+    GeometryNonPositive,
+    /// A dished bottom deeper than the vessel radius.
+    GeometryDishTooDeep,
+    /// A strapping table needs at least two points.
+    StrappingTooShort,
+    /// A strapping table has more points than its fixed capacity.
+    StrappingFull,
+    /// Strapping-table levels must start at 0 and rise strictly; volumes must
+    /// start at 0 or above and rise strictly. Carries the first offending
+    /// point's index.
+    StrappingNotMonotone(u8),
+    /// A strapping-table value is NaN or infinite (point index).
+    StrappingNonFinite(u8),
+    /// The tick length is zero.
+    ConfigZeroTick,
+    /// A configuration number is NaN or infinite.
+    ConfigNonFinite,
+    /// A coefficient that must be positive is zero or negative.
+    ConfigNonPositive,
+    /// The minimum observable holdup is negative or not below the capacity.
+    ConfigMinHoldup,
+    /// An outlet's coefficient, area or elevation is invalid (outlet index).
+    ConfigOutlet(u8),
+    /// A reaction has no reactant, or its stoichiometry is all zero
+    /// (reaction index).
+    ReactionNoReactant(u8),
+    /// A reaction order is negative, NaN or above the supported maximum of 4
+    /// (reaction index).
+    ReactionOrder(u8),
+    /// A rate constant, activation energy or reference temperature is
+    /// negative, NaN or infinite (reaction index).
+    ReactionRateConstant(u8),
+    /// A reaction's order on a species that it does not consume in that
+    /// direction: mass action needs orders only on reactants
+    /// (reaction index).
+    ReactionOrderOnNonReactant(u8),
+    /// The exact integrator was requested for a network that is not linear
+    /// and diagonal (only first-order consumption of species that no reaction
+    /// produces is allowed).
+    ConfigExactNotApplicable,
+    /// The initial holdup is negative, NaN, or above the vessel's capacity.
+    InitialVolume,
+    /// An initial concentration is negative, NaN or infinite (species index).
+    InitialConcentration(u8),
+}
+
+impl Error {
+    /// A fixed, human-readable description.
+    pub const fn message(&self) -> &'static str {
+        match self {
+            Error::GeometryNonPositive => "vessel dimension must be finite and positive",
+            Error::GeometryDishTooDeep => "dished bottom depth must not exceed the vessel radius",
+            Error::StrappingTooShort => "strapping table needs at least two points",
+            Error::StrappingFull => "strapping table has more points than its capacity",
+            Error::StrappingNotMonotone(_) => {
+                "strapping table must start at level 0 and rise strictly in level and volume"
+            }
+            Error::StrappingNonFinite(_) => "strapping table value is not a finite number",
+            Error::ConfigZeroTick => "tick length must be at least 1 ms",
+            Error::ConfigNonFinite => "configuration value is not a finite number",
+            Error::ConfigNonPositive => "configuration value must be positive",
+            Error::ConfigMinHoldup => {
+                "minimum observable holdup must be non-negative and below the capacity"
+            }
+            Error::ConfigOutlet(_) => {
+                "outlet coefficient, area, width or elevation is invalid (must be finite; coefficient and area positive; elevation within the vessel)"
+            }
+            Error::ReactionNoReactant(_) => "reaction has no reactant (no negative stoichiometric coefficient)",
+            Error::ReactionOrder(_) => "reaction order must be finite and within 0..=4",
+            Error::ReactionRateConstant(_) => {
+                "rate constant, activation energy and reference temperature must be finite and non-negative (temperature positive)"
+            }
+            Error::ReactionOrderOnNonReactant(_) => {
+                "reaction order given for a species that the reaction does not consume"
+            }
+            Error::ConfigExactNotApplicable => {
+                "exact integrator needs a linear, uncoupled network (first-order consumption only, of species no reaction produces)"
+            }
+            Error::InitialVolume => "initial holdup must be finite, non-negative and within the vessel capacity",
+            Error::InitialConcentration(_) => "initial concentration must be finite and non-negative",
+        }
+    }
+}
+
+impl fmt::Display for Error {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.message())
+    }
+}

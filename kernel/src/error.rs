@@ -50,10 +50,6 @@ pub enum Error {
     /// A rate constant, activation energy or reference temperature is
     /// negative, NaN or infinite (reaction index).
     ReactionRateConstant(u8),
-    /// A reaction's order on a species that it does not consume in that
-    /// direction: mass action needs orders only on reactants
-    /// (reaction index).
-    ReactionOrderOnNonReactant(u8),
     /// The exact integrator was requested for a network that is not linear
     /// and diagonal (only first-order consumption of species that no reaction
     /// produces is allowed).
@@ -62,6 +58,8 @@ pub enum Error {
     InitialVolume,
     /// An initial concentration is negative, NaN or infinite (species index).
     InitialConcentration(u8),
+    /// The initial temperature is not a finite positive number of kelvin.
+    InitialTemperature,
 }
 
 impl Error {
@@ -90,14 +88,12 @@ impl Error {
             Error::ReactionRateConstant(_) => {
                 "rate constant, activation energy and reference temperature must be finite and non-negative (temperature positive)"
             }
-            Error::ReactionOrderOnNonReactant(_) => {
-                "reaction order given for a species that the reaction does not consume"
-            }
             Error::ConfigExactNotApplicable => {
                 "exact integrator needs a linear, uncoupled network (first-order consumption only, of species no reaction produces)"
             }
             Error::InitialVolume => "initial holdup must be finite, non-negative and within the vessel capacity",
             Error::InitialConcentration(_) => "initial concentration must be finite and non-negative",
+            Error::InitialTemperature => "initial temperature must be finite and positive (kelvin)",
         }
     }
 }

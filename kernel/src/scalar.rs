@@ -71,11 +71,13 @@ pub trait Scalar:
     fn abs(self) -> Self;
     /// True unless NaN or infinite.
     fn is_finite(self) -> bool;
+    /// True for NaN.
+    fn is_nan(self) -> bool;
 
     /// The larger of two values; a NaN argument yields the other one.
     #[inline]
     fn max(self, other: Self) -> Self {
-        if self >= other || other != other {
+        if self >= other || other.is_nan() {
             self
         } else {
             other
@@ -85,7 +87,7 @@ pub trait Scalar:
     /// The smaller of two values; a NaN argument yields the other one.
     #[inline]
     fn min(self, other: Self) -> Self {
-        if self <= other || other != other {
+        if self <= other || other.is_nan() {
             self
         } else {
             other
@@ -166,6 +168,10 @@ macro_rules! impl_scalar {
             #[inline]
             fn is_finite(self) -> bool {
                 <$t>::is_finite(self)
+            }
+            #[inline]
+            fn is_nan(self) -> bool {
+                <$t>::is_nan(self)
             }
         }
     };
@@ -252,6 +258,9 @@ mod tests {
         let rel_comp = ((comp.value() as f64) - exact).abs() / exact;
         let rel_plain = ((plain as f64) - exact).abs() / exact;
         assert!(rel_comp < 1e-7, "compensated rel error {rel_comp}");
-        assert!(rel_plain > 1e-3, "plain sum unexpectedly accurate: {rel_plain}");
+        assert!(
+            rel_plain > 1e-3,
+            "plain sum unexpectedly accurate: {rel_plain}"
+        );
     }
 }

@@ -1,0 +1,507 @@
+//! The balance model: vessel, outlets, reaction network, and its validation.
+//!
+//! A [`VesselSpec`] is the raw description (public fields, as read from a
+//! configuration). [`Model::new`] checks it once and compiles it into a
+//! [`Model`], which cannot be invalid; only a `Model` reaches the tick.
+//!
+//! # Equations
+//!
+//! Holdup `V` (m³) and component amounts `n_i` (mol), well mixed, constant
+//! density:
+//!
+//! ```text
+//! dV/dt   = Σ_s q_in,s − Σ_k q_out,k(V)
+//! dn_i/dt = Σ_s q_in,s·c_in,s,i − (Σ_k q_out,k)·n_i/V + V·Σ_j ν_ij·r_j(c, T)
+//! r_j     = k_f,j(T)·Π_i c_i^α_ij − k_b,j(T)·Π_i c_i^β_ij
+//! k(T)    = k_ref·exp(−(E_a/R)·(1/T − 1/T_ref))          (Arrhenius)
+//! ```
+//!
+//! Outlets are measured flows, or computed from the level `z(V)`:
+//! gravity drain through an orifice or valve, `q = C_d·A_o·√(2 g (z − z_o))`
+//! (Torricelli), or overflow over a rectangular sharp-crested weir,
+//! `q = (2/3)·C_d·b·√(2 g)·(z − z_c)^{3/2}` (Poleni's weir formula).
+
+use heapless::Vec;
+
+use crate::geometry::Geometry;
+use crate::units::{GAS_CONSTANT, STANDARD_GRAVITY};
+use crate::{Error, Scalar};
+
+/// How an outlet's flow is known.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Outlet<S> {
+    /// A flow meter: the flow is an input ([`Inputs::outlet_flows`]).
+    Measured,
+    /// Gravity drain through an orifice or a fixed valve opening whose centre
+    /// is `elevation` m above the vessel bottom: `q = C_d·A·√(2 g (z − elevation))`.
+    Orifice {
+        /// Discharge coefficient `C_d` (sharp-edged orifice ≈ 0.61, common practice).
+        discharge_coefficient: S,
+        /// Orifice (or valve flow) area `A`, m².
+        area: S,
+        /// Height of the orifice centre above the vessel bottom, m.
+        elevation: S,
+    },
+    /// Overflow over a rectangular sharp-crested weir:
+    /// `q = (2/3)·C_d·b·√(2 g)·(z − crest)^{3/2}`.
+    Weir {
+        /// Discharge coefficient `C_d` (≈ 0.62 for a sharp crest, common practice).
+        discharge_coefficient: S,
+        /// Crest width `b`, m.
+        width: S,
+        /// Crest height above the vessel bottom, m.
+        crest_level: S,
+    },
+}
+
+/// One direction of a reaction's kinetics: `k(T)·Π c_i^order_i`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Kinetics<S, const N: usize> {
+    /// Rate constant at `reference_temperature`, in (mol/m³)^(1 − Σ orders)/s.
+    pub rate_constant: S,
+    /// Activation energy `E_a`, J/mol (0 for no temperature dependence).
+    pub activation_energy: S,
+    /// Reaction order on each species (0 where the rate does not depend on it).
+    pub orders: [S; N],
+}
+
+/// One reaction: stoichiometry and rate law.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct ReactionSpec<S, const N: usize> {
+    /// Stoichiometric coefficients `ν_i`: negative for reactants, positive for
+    /// products, zero for species not taking part.
+    pub stoichiometry: [S; N],
+    /// Forward rate law.
+    pub forward: Kinetics<S, N>,
+    /// Reverse rate law, for a reversible reaction (its orders are usually on
+    /// the products).
+    pub reverse: Option<Kinetics<S, N>>,
+    /// Temperature at which the rate constants are given, K.
+    pub reference_temperature: S,
+}
+
+/// Which integrator the component balances use.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Method {
+    /// The exact step where the network allows it (no reactions, or
+    /// first-order consumption only), MPRK22 otherwise. The default.
+    #[default]
+    Auto,
+    /// The exact step; the configuration is refused if the network is not
+    /// linear and uncoupled. A tick with changing volume and a reaction falls
+    /// back to MPRK22 and says so.
+    Exact,
+    /// Modified Patankar–Runge–Kutta (MPRK22): positive and conservative at
+    /// any tick, second order.
+    Mprk22,
+    /// Reference only: classical RK4. Loses positivity at large `k·h`;
+    /// negative amounts are clamped and flagged.
+    ReferenceRk4,
+    /// Reference only: explicit Euler, what a PLC block usually does. Goes
+    /// negative at `λh > 1`; negative amounts are clamped and flagged.
+    ReferenceEuler,
+}
+
+/// Raw description of one vessel with `N` species, up to `R` reactions,
+/// up to `O` outlets.
+#[derive(Clone, Debug)]
+pub struct VesselSpec<S, const N: usize, const R: usize, const O: usize> {
+    /// Shape and size (already validated).
+    pub geometry: Geometry<S>,
+    /// Outlets, in the order of [`Inputs::outlet_flows`].
+    pub outlets: Vec<Outlet<S>, O>,
+    /// Reaction network.
+    pub reactions: Vec<ReactionSpec<S, N>, R>,
+    /// Below this holdup (m³) concentrations are not resolved from the
+    /// balance (see [`crate::StatusFlags::NEAR_EMPTY`]).
+    pub min_holdup: S,
+    /// Tick length, ms.
+    pub tick_ms: u32,
+    /// Integrator for the component balances.
+    pub method: Method,
+}
+
+/// Inputs held constant over one tick (zero-order hold), SI units.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Inputs<S, const N: usize, const I: usize, const O: usize> {
+    /// Flow of each inlet, m³/s.
+    pub inlet_flows: [S; I],
+    /// Composition of each inlet, mol/m³.
+    pub feed: [[S; N]; I],
+    /// Flow of each outlet, m³/s; read only for [`Outlet::Measured`] outlets.
+    pub outlet_flows: [S; O],
+    /// Vessel temperature, K.
+    pub temperature: S,
+}
+
+impl<S: Scalar, const N: usize, const I: usize, const O: usize> Inputs<S, N, I, O> {
+    /// All flows and feed concentrations zero, at temperature `temperature` K.
+    pub fn quiescent(temperature: S) -> Self {
+        Self {
+            inlet_flows: [S::ZERO; I],
+            feed: [[S::ZERO; N]; I],
+            outlet_flows: [S::ZERO; O],
+            temperature,
+        }
+    }
+}
+
+/// A compiled reaction order: the common cases avoid `powf`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(crate) enum Order<S> {
+    Zero,
+    One,
+    Two,
+    Real(S),
+}
+
+impl<S: Scalar> Order<S> {
+    fn of(a: S) -> Self {
+        if a == S::ZERO {
+            Order::Zero
+        } else if a == S::ONE {
+            Order::One
+        } else if a == S::TWO {
+            Order::Two
+        } else {
+            Order::Real(a)
+        }
+    }
+
+    #[inline]
+    fn apply(self, c: S) -> S {
+        match self {
+            Order::Zero => S::ONE,
+            Order::One => c,
+            Order::Two => c * c,
+            Order::Real(a) => c.powf(a),
+        }
+    }
+}
+
+/// Compiled kinetics of one reaction direction.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(crate) struct Rate<S, const N: usize> {
+    k_ref: S,
+    /// `E_a/R`, K.
+    ea_over_r: S,
+    inv_t_ref: S,
+    orders: [Order<S>; N],
+}
+
+impl<S: Scalar, const N: usize> Rate<S, N> {
+    /// Rate constant at temperature `t` (K).
+    #[inline]
+    pub(crate) fn constant(&self, t: S) -> S {
+        if self.ea_over_r == S::ZERO {
+            self.k_ref
+        } else {
+            self.k_ref * (-(self.ea_over_r) * (S::ONE / t - self.inv_t_ref)).exp()
+        }
+    }
+
+    /// Rate in mol/(m³·s) for rate constant `k` at concentrations `c`.
+    #[inline]
+    pub(crate) fn rate(&self, k: S, c: &[S; N]) -> S {
+        let mut r = k;
+        for (o, &ci) in self.orders.iter().zip(c.iter()) {
+            r *= o.apply(ci);
+        }
+        r
+    }
+}
+
+/// A compiled reaction: stoichiometry and one or two directions.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub(crate) struct Reaction<S, const N: usize> {
+    pub(crate) nu: [S; N],
+    pub(crate) forward: Rate<S, N>,
+    pub(crate) reverse: Option<Rate<S, N>>,
+}
+
+/// A validated vessel model. Built only by [`Model::new`].
+#[derive(Clone, Debug)]
+pub struct Model<S, const N: usize, const R: usize, const O: usize> {
+    pub(crate) geometry: Geometry<S>,
+    pub(crate) outlets: Vec<Outlet<S>, O>,
+    pub(crate) reactions: Vec<Reaction<S, N>, R>,
+    pub(crate) min_holdup: S,
+    pub(crate) capacity: S,
+    pub(crate) tick_ms: u32,
+    pub(crate) method: Method,
+    /// The network is linear and uncoupled (the exact step applies).
+    pub(crate) exact_class: bool,
+    pub(crate) has_computed_outlets: bool,
+}
+
+fn compile_rate<S: Scalar, const N: usize>(
+    k: &Kinetics<S, N>,
+    t_ref: S,
+    index: u8,
+) -> Result<Rate<S, N>, Error> {
+    if !Scalar::is_finite(k.rate_constant)
+        || k.rate_constant < S::ZERO
+        || !Scalar::is_finite(k.activation_energy)
+        || k.activation_energy < S::ZERO
+    {
+        return Err(Error::ReactionRateConstant(index));
+    }
+    let mut orders = [Order::Zero; N];
+    for (o, &a) in orders.iter_mut().zip(k.orders.iter()) {
+        if !Scalar::is_finite(a) || a < S::ZERO || a > S::of(4.0) {
+            return Err(Error::ReactionOrder(index));
+        }
+        *o = Order::of(a);
+    }
+    Ok(Rate {
+        k_ref: k.rate_constant,
+        ea_over_r: k.activation_energy / S::of(GAS_CONSTANT),
+        inv_t_ref: S::ONE / t_ref,
+        orders,
+    })
+}
+
+impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O> {
+    /// Check a raw description and compile it.
+    ///
+    /// Errors: [`Error::ConfigZeroTick`], [`Error::ConfigMinHoldup`],
+    /// [`Error::ConfigOutlet`], [`Error::ReactionNoReactant`],
+    /// [`Error::ReactionOrder`], [`Error::ReactionRateConstant`],
+    /// [`Error::ConfigExactNotApplicable`].
+    pub fn new(spec: VesselSpec<S, N, R, O>) -> Result<Self, Error> {
+        if spec.tick_ms == 0 {
+            return Err(Error::ConfigZeroTick);
+        }
+        let capacity = spec.geometry.max_volume();
+        let top = spec.geometry.max_level();
+        if !Scalar::is_finite(spec.min_holdup)
+            || spec.min_holdup < S::ZERO
+            || spec.min_holdup >= capacity
+        {
+            return Err(Error::ConfigMinHoldup);
+        }
+        let mut has_computed_outlets = false;
+        for (k, o) in spec.outlets.iter().enumerate() {
+            let ok = match *o {
+                Outlet::Measured => true,
+                Outlet::Orifice {
+                    discharge_coefficient: c,
+                    area: a,
+                    elevation: z,
+                }
+                | Outlet::Weir {
+                    discharge_coefficient: c,
+                    width: a,
+                    crest_level: z,
+                } => {
+                    has_computed_outlets = true;
+                    Scalar::is_finite(c)
+                        && Scalar::is_finite(a)
+                        && Scalar::is_finite(z)
+                        && c > S::ZERO
+                        && a > S::ZERO
+                        && z >= S::ZERO
+                        && z <= top
+                }
+            };
+            if !ok {
+                return Err(Error::ConfigOutlet(k as u8));
+            }
+        }
+        let mut reactions = Vec::new();
+        let mut exact_class = true;
+        let mut produced = [false; N];
+        for (j, r) in spec.reactions.iter().enumerate() {
+            let idx = j as u8;
+            if !Scalar::is_finite(r.reference_temperature) || r.reference_temperature <= S::ZERO {
+                return Err(Error::ReactionRateConstant(idx));
+            }
+            let mut reactants = 0usize;
+            for &nu in r.stoichiometry.iter() {
+                if !Scalar::is_finite(nu) {
+                    return Err(Error::ConfigNonFinite);
+                }
+                if nu < S::ZERO {
+                    reactants += 1;
+                }
+            }
+            if reactants == 0 {
+                return Err(Error::ReactionNoReactant(idx));
+            }
+            let forward = compile_rate(&r.forward, r.reference_temperature, idx)?;
+            let reverse = match &r.reverse {
+                Some(k) => {
+                    if !r.stoichiometry.iter().any(|&nu| nu > S::ZERO) {
+                        // A reverse direction needs something to consume.
+                        return Err(Error::ReactionNoReactant(idx));
+                    }
+                    Some(compile_rate(k, r.reference_temperature, idx)?)
+                }
+                None => None,
+            };
+            // Exact class: irreversible, one reactant with ν = −1 and order 1,
+            // no other order, no products.
+            let single = reactants == 1
+                && reverse.is_none()
+                && r.stoichiometry.iter().all(|&nu| nu <= S::ZERO)
+                && r.stoichiometry
+                    .iter()
+                    .zip(forward.orders.iter())
+                    .all(|(&nu, o)| {
+                        if nu < S::ZERO {
+                            nu == -S::ONE && *o == Order::One
+                        } else {
+                            *o == Order::Zero
+                        }
+                    });
+            if !single {
+                exact_class = false;
+            }
+            for (p, &nu) in produced.iter_mut().zip(r.stoichiometry.iter()) {
+                if nu > S::ZERO {
+                    *p = true;
+                }
+            }
+            // Capacity of `reactions` equals that of `spec.reactions`.
+            let _ = reactions.push(Reaction {
+                nu: r.stoichiometry,
+                forward,
+                reverse,
+            });
+        }
+        if spec.method == Method::Exact && !exact_class {
+            return Err(Error::ConfigExactNotApplicable);
+        }
+        Ok(Self {
+            geometry: spec.geometry,
+            outlets: spec.outlets,
+            reactions,
+            min_holdup: spec.min_holdup,
+            capacity,
+            tick_ms: spec.tick_ms,
+            method: spec.method,
+            exact_class,
+            has_computed_outlets,
+        })
+    }
+
+    /// Vessel geometry.
+    pub fn geometry(&self) -> &Geometry<S> {
+        &self.geometry
+    }
+
+    /// Vessel capacity (volume at the top of the geometry), m³.
+    pub fn capacity(&self) -> S {
+        self.capacity
+    }
+
+    /// Minimum observable holdup, m³.
+    pub fn min_holdup(&self) -> S {
+        self.min_holdup
+    }
+
+    /// Tick length, ms.
+    pub fn tick_ms(&self) -> u32 {
+        self.tick_ms
+    }
+
+    /// Configured integrator.
+    pub fn method(&self) -> Method {
+        self.method
+    }
+
+    /// True when the network is linear and uncoupled, so the exact step applies.
+    pub fn is_exact_class(&self) -> bool {
+        self.exact_class
+    }
+
+    /// Number of reactions.
+    pub fn reaction_count(&self) -> usize {
+        self.reactions.len()
+    }
+
+    /// Total flow (m³/s) of the outlets computed from the state, at holdup `v`.
+    pub fn computed_outflow(&self, v: S) -> S {
+        if !self.has_computed_outlets {
+            return S::ZERO;
+        }
+        let z = self.geometry.level_at(v);
+        let two_g = S::of(2.0 * STANDARD_GRAVITY);
+        let mut q = S::ZERO;
+        for o in self.outlets.iter() {
+            match *o {
+                Outlet::Measured => {}
+                Outlet::Orifice {
+                    discharge_coefficient,
+                    area,
+                    elevation,
+                } => {
+                    let head = z - elevation;
+                    if head > S::ZERO {
+                        q += discharge_coefficient * area * (two_g * head).sqrt();
+                    }
+                }
+                Outlet::Weir {
+                    discharge_coefficient,
+                    width,
+                    crest_level,
+                } => {
+                    let head = z - crest_level;
+                    if head > S::ZERO {
+                        q += S::of(2.0 / 3.0)
+                            * discharge_coefficient
+                            * width
+                            * two_g.sqrt()
+                            * head
+                            * head.sqrt();
+                    }
+                }
+            }
+        }
+        q
+    }
+
+    /// Rate constants of every reaction direction at temperature `t` (K):
+    /// `[forward, reverse]` per reaction (reverse 0 when irreversible).
+    pub(crate) fn rate_constants(&self, t: S, out: &mut [[S; 2]; R]) {
+        for (k, r) in out.iter_mut().zip(self.reactions.iter()) {
+            k[0] = r.forward.constant(t);
+            k[1] = match &r.reverse {
+                Some(rev) => rev.constant(t),
+                None => S::ZERO,
+            };
+        }
+    }
+
+    /// Molar rate (mol/s) of every reaction direction for amounts `n` in
+    /// holdup `v`: `ρ = V·k·Π c^order`.
+    pub(crate) fn molar_rates(&self, k: &[[S; 2]; R], n: &[S; N], v: S, out: &mut [[S; 2]; R]) {
+        let mut c = [S::ZERO; N];
+        let inv_v = S::ONE / v;
+        for (ci, &ni) in c.iter_mut().zip(n.iter()) {
+            *ci = ni * inv_v;
+        }
+        for ((o, kj), r) in out.iter_mut().zip(k.iter()).zip(self.reactions.iter()) {
+            o[0] = v * r.forward.rate(kj[0], &c);
+            o[1] = match &r.reverse {
+                Some(rev) => v * rev.rate(kj[1], &c),
+                None => S::ZERO,
+            };
+        }
+    }
+
+    /// First-order consumption constant of each species (1/s) at rate
+    /// constants `k`; meaningful only in the exact class.
+    pub(crate) fn first_order_constants(&self, k: &[[S; 2]; R]) -> [S; N] {
+        let mut lam = [S::ZERO; N];
+        for (r, kj) in self.reactions.iter().zip(k.iter()) {
+            for (l, &nu) in lam.iter_mut().zip(r.nu.iter()) {
+                if nu < S::ZERO {
+                    *l += kj[0];
+                }
+            }
+        }
+        lam
+    }
+}

@@ -1,0 +1,134 @@
+//! What a tick reports: status flags and counters.
+//!
+//! A tick never fails. Every fault it meets is clamped to something safe and
+//! raised here, so a caller (the observer, the register map, a log line) can
+//! see it and lower the quality of what depends on it.
+
+/// A set of status bits raised during one tick (or accumulated over several).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct StatusFlags(u16);
+
+impl StatusFlags {
+    /// Nothing to report.
+    pub const NONE: Self = Self(0);
+    /// The holdup reached zero: outlets delivered only what was there.
+    pub const EMPTY: Self = Self(1 << 0);
+    /// Holdup below the minimum observable holdup: the component balance is
+    /// not resolved from concentrations; material leaves as mixed with the
+    /// feed, reactions are not integrated, reported concentrations are held.
+    pub const NEAR_EMPTY: Self = Self(1 << 1);
+    /// Holdup would have exceeded the vessel capacity: clamped at the
+    /// capacity, the excess left as overflow with the mixed composition.
+    pub const OVERFLOW: Self = Self(1 << 2);
+    /// The measured outflow was more than the vessel held: limited.
+    pub const OUTLET_LIMITED: Self = Self(1 << 3);
+    /// A negative flow or concentration was given: replaced by zero.
+    pub const INPUT_NEGATIVE: Self = Self(1 << 4);
+    /// A NaN or infinite input was given: flows and concentrations replaced
+    /// by zero, temperature held at its last good value.
+    pub const INPUT_NOT_FINITE: Self = Self(1 << 5);
+    /// A component amount came out below zero by rounding (or, in a
+    /// reference method, by the method itself) and was set to zero.
+    pub const AMOUNT_CLAMPED: Self = Self(1 << 6);
+    /// The exact method was requested but this tick was not in its class
+    /// (changing volume with a reaction): MPRK22 was used instead.
+    pub const METHOD_FALLBACK: Self = Self(1 << 7);
+    /// The stage solve met a singular or non-finite system: the component
+    /// amounts were held at their previous values for this tick.
+    pub const NUMERIC_FAULT: Self = Self(1 << 8);
+
+    /// The raw bits (stable: documented above, for registers and logs).
+    pub const fn bits(self) -> u16 {
+        self.0
+    }
+
+    /// Flags from raw bits; unknown bits are kept.
+    pub const fn from_bits(bits: u16) -> Self {
+        Self(bits)
+    }
+
+    /// True if every bit of `other` is set in `self`.
+    pub const fn contains(self, other: Self) -> bool {
+        self.0 & other.0 == other.0
+    }
+
+    /// True if no bit is set.
+    pub const fn is_empty(self) -> bool {
+        self.0 == 0
+    }
+
+    /// Set the bits of `other`.
+    pub fn insert(&mut self, other: Self) {
+        self.0 |= other.0;
+    }
+
+    /// Names of the set flags, in bit order (fixed strings, for reports).
+    pub fn names(self) -> impl Iterator<Item = &'static str> {
+        const NAMES: [&str; 9] = [
+            "empty",
+            "near_empty",
+            "overflow",
+            "outlet_limited",
+            "input_negative",
+            "input_not_finite",
+            "amount_clamped",
+            "method_fallback",
+            "numeric_fault",
+        ];
+        NAMES
+            .into_iter()
+            .enumerate()
+            .filter(move |(i, _)| self.0 & (1 << i) != 0)
+            .map(|(_, n)| n)
+    }
+}
+
+impl core::ops::BitOr for StatusFlags {
+    type Output = Self;
+    fn bitor(self, rhs: Self) -> Self {
+        Self(self.0 | rhs.0)
+    }
+}
+
+impl core::ops::BitOrAssign for StatusFlags {
+    fn bitor_assign(&mut self, rhs: Self) {
+        self.0 |= rhs.0;
+    }
+}
+
+/// Which integrator a tick actually used for the component balances.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum MethodUsed {
+    /// Closed-form step (linear, uncoupled).
+    #[default]
+    Exact,
+    /// Modified Patankar–Runge–Kutta, second order.
+    Mprk22,
+    /// Reference: classical Runge–Kutta, fourth order (not positivity-preserving).
+    ReferenceRk4,
+    /// Reference: explicit Euler (not positivity-preserving).
+    ReferenceEuler,
+    /// Near-empty mixing step (no reaction, no division by the holdup).
+    NearEmpty,
+}
+
+/// What one tick did.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct StepReport<S> {
+    /// Faults met and clamps applied during the tick.
+    pub flags: StatusFlags,
+    /// The integrator used for the component balances.
+    pub method: MethodUsed,
+    /// Number of reaction-rate evaluations (each covers all reactions).
+    pub rate_evaluations: u8,
+    /// Number of clamps applied (inputs replaced, amounts set to zero,
+    /// holdup limited).
+    pub clamps: u8,
+    /// Volume that left through all outlets and overflow during the tick, m³.
+    pub outflow_volume: S,
+    /// Volume that left by overflow above capacity during the tick, m³.
+    pub spilled_volume: S,
+}

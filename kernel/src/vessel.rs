@@ -1,0 +1,371 @@
+//! One vessel's state and its fixed tick: the balance step.
+//!
+//! [`Vessel::step`] advances the holdup and every component amount by one
+//! tick with the inputs held (zero-order hold). In order:
+//!
+//! 1. **Inputs.** Negative flows and concentrations become zero
+//!    ([`StatusFlags::INPUT_NEGATIVE`]); NaN and infinities become zero, a bad
+//!    temperature holds the last good one ([`StatusFlags::INPUT_NOT_FINITE`]).
+//! 2. **Holdup.** With measured outlets only, `V₁ = V₀ + h·(Σq_in − Σq_out)`
+//!    exactly; an outflow that would take more than the vessel holds is
+//!    limited at empty ([`StatusFlags::EMPTY`], [`StatusFlags::OUTLET_LIMITED`]).
+//!    With computed outlets (orifice, weir), the holdup equation is stepped by
+//!    the scalar MPRK22 with the outflow as destruction term: positive at any
+//!    tick, second order. Above capacity the holdup is clamped and the excess
+//!    leaves as overflow ([`StatusFlags::OVERFLOW`]).
+//! 3. **Components.** With the tick's average outflow `q_out = (V₀ + h·q_in − V₁)/h`
+//!    and `V(t)` linear over the tick, the configured integrator
+//!    ([`crate::Method`]) advances the amounts. Below the minimum observable
+//!    holdup, no concentration is formed: the tick mixes feed into the
+//!    content and draws the outflow as a fraction of both
+//!    ([`StatusFlags::NEAR_EMPTY`]); reported concentrations are held.
+//! 4. **Totals.** Holdup and amounts are double-word
+//!    [`Compensated`] totals, so `f32` keeps increments of 1e-7 relative
+//!    over a year of ticks.
+//!
+//! Bounded work: one pass over inlets and outlets, at most two evaluations
+//! of the computed outlets (each a level inversion of bounded iterations),
+//! then the integrator's fixed work; no heap, no recursion, no panic.
+
+use crate::integrate::{euler_step, exact, mprk22, rk4_step, TickFrame, TickRhs};
+use crate::model::{Inputs, Method, Model, Outlet};
+use crate::status::{MethodUsed, StatusFlags, StepReport};
+use crate::units::{seconds, Millis};
+use crate::{Compensated, Error, Scalar};
+
+/// The state a vessel starts from.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct InitialState<S, const N: usize> {
+    /// Holdup, m³.
+    pub volume: S,
+    /// Concentration of each species, mol/m³.
+    pub concentrations: [S; N],
+    /// Temperature, K (held until the first good reading).
+    pub temperature: S,
+}
+
+/// A vessel: validated model, balance state and integer time.
+#[derive(Clone, Debug)]
+pub struct Vessel<S, const N: usize, const R: usize, const O: usize> {
+    model: Model<S, N, R, O>,
+    volume: Compensated<S>,
+    amounts: [Compensated<S>; N],
+    held: [S; N],
+    temperature: S,
+    time_ms: Millis,
+}
+
+/// Replace a bad input by zero and say so.
+#[inline]
+fn sanitize<S: Scalar>(x: S, rep: &mut StepReport<S>) -> S {
+    if !x.is_finite() {
+        rep.flags |= StatusFlags::INPUT_NOT_FINITE;
+        rep.clamps = rep.clamps.saturating_add(1);
+        S::ZERO
+    } else if x < S::ZERO {
+        rep.flags |= StatusFlags::INPUT_NEGATIVE;
+        rep.clamps = rep.clamps.saturating_add(1);
+        S::ZERO
+    } else {
+        x
+    }
+}
+
+impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, O> {
+    /// A vessel at time 0 in state `init`.
+    ///
+    /// Errors: [`Error::InitialVolume`], [`Error::InitialConcentration`],
+    /// [`Error::InitialTemperature`].
+    pub fn new(model: Model<S, N, R, O>, init: &InitialState<S, N>) -> Result<Self, Error> {
+        let v = init.volume;
+        if !v.is_finite() || v < S::ZERO || v > model.capacity {
+            return Err(Error::InitialVolume);
+        }
+        if !init.temperature.is_finite() || init.temperature <= S::ZERO {
+            return Err(Error::InitialTemperature);
+        }
+        let mut amounts = [Compensated::new(S::ZERO); N];
+        for (i, (a, &c)) in amounts
+            .iter_mut()
+            .zip(init.concentrations.iter())
+            .enumerate()
+        {
+            if !c.is_finite() || c < S::ZERO {
+                return Err(Error::InitialConcentration(i as u8));
+            }
+            *a = Compensated::new(c * v);
+        }
+        Ok(Self {
+            model,
+            volume: Compensated::new(v),
+            amounts,
+            held: init.concentrations,
+            temperature: init.temperature,
+            time_ms: 0,
+        })
+    }
+
+    /// The model.
+    pub fn model(&self) -> &Model<S, N, R, O> {
+        &self.model
+    }
+
+    /// Time since start, ms.
+    pub fn time_ms(&self) -> Millis {
+        self.time_ms
+    }
+
+    /// When the next tick is due, ms.
+    pub fn next_due(&self) -> Millis {
+        self.time_ms.saturating_add(u64::from(self.model.tick_ms))
+    }
+
+    /// Holdup, m³.
+    pub fn volume(&self) -> S {
+        self.volume.value()
+    }
+
+    /// Level from the vessel bottom, m.
+    pub fn level(&self) -> S {
+        self.model.geometry.level_at(self.volume())
+    }
+
+    /// Temperature in use, K (the last good reading).
+    pub fn temperature(&self) -> S {
+        self.temperature
+    }
+
+    /// Amount of each species, mol.
+    pub fn amounts(&self) -> [S; N] {
+        let mut out = [S::ZERO; N];
+        for (o, a) in out.iter_mut().zip(self.amounts.iter()) {
+            *o = a.value();
+        }
+        out
+    }
+
+    /// True while the holdup is at or below the minimum observable holdup.
+    pub fn is_near_empty(&self) -> bool {
+        !(self.volume() > self.observable_floor())
+    }
+
+    /// Concentration of each species, mol/m³; held at the last observable
+    /// value while the vessel is near empty.
+    pub fn concentrations(&self) -> [S; N] {
+        if self.is_near_empty() {
+            return self.held;
+        }
+        let v = self.volume();
+        let mut out = self.amounts();
+        for o in out.iter_mut() {
+            *o = *o / v;
+        }
+        out
+    }
+
+    /// The holdup at or below which concentrations are not formed: the
+    /// configured minimum, but never below `ε·capacity`.
+    fn observable_floor(&self) -> S {
+        self.model.min_holdup.max(S::EPSILON * self.model.capacity)
+    }
+
+    /// Advance one tick with inputs `u` held over it. Never fails; see the
+    /// module documentation for what is clamped and flagged.
+    pub fn step<const I: usize>(&mut self, u: &Inputs<S, N, I, O>) -> StepReport<S> {
+        let mut rep = StepReport::default();
+        let h: S = seconds(self.model.tick_ms);
+
+        // 1. Inputs.
+        let mut q_in = S::ZERO;
+        let mut feed = [S::ZERO; N];
+        for (&q, conc) in u.inlet_flows.iter().zip(u.feed.iter()) {
+            let q = sanitize(q, &mut rep);
+            if q > S::ZERO {
+                q_in += q;
+                for (f, &c) in feed.iter_mut().zip(conc.iter()) {
+                    *f += q * sanitize(c, &mut rep);
+                }
+            }
+        }
+        let mut q_meas = S::ZERO;
+        for (o, &q) in self.model.outlets.iter().zip(u.outlet_flows.iter()) {
+            if *o == Outlet::Measured {
+                q_meas += sanitize(q, &mut rep);
+            }
+        }
+        if u.temperature.is_finite() && u.temperature > S::ZERO {
+            self.temperature = u.temperature;
+        } else {
+            rep.flags |= if u.temperature.is_finite() {
+                StatusFlags::INPUT_NEGATIVE
+            } else {
+                StatusFlags::INPUT_NOT_FINITE
+            };
+            rep.clamps = rep.clamps.saturating_add(1);
+        }
+
+        // 2. Holdup.
+        let v0 = self.volume();
+        let available = v0 + h * q_in;
+        if h * q_meas > available {
+            rep.flags |= StatusFlags::OUTLET_LIMITED;
+        }
+        let net = q_in - q_meas;
+        let mut dv = if self.model.has_computed_outlets {
+            self.holdup_increment_computed(v0, net, h)
+        } else {
+            h * net
+        };
+        if v0 + dv <= S::ZERO {
+            dv = -v0;
+        }
+        let v1 = v0 + dv;
+        let capacity = self.model.capacity;
+        if v1 > capacity {
+            rep.flags |= StatusFlags::OVERFLOW;
+            rep.clamps = rep.clamps.saturating_add(1);
+            rep.spilled_volume = v1 - capacity;
+            dv = capacity - v0;
+            self.volume.set(capacity);
+        } else if !(v1 > S::ZERO) {
+            rep.flags |= StatusFlags::EMPTY;
+            self.volume.set(S::ZERO);
+        } else {
+            self.volume.add(dv);
+        }
+        let v1 = self.volume();
+        // Everything that came in and did not stay went out.
+        let outflow_volume = (h * q_in - dv).max(S::ZERO);
+        rep.outflow_volume = outflow_volume;
+
+        // 3. Components.
+        let y0 = self.amounts();
+        let floor = self.observable_floor();
+        let delta = if !(v0 > floor) || !(v1 > floor) {
+            rep.flags |= StatusFlags::NEAR_EMPTY;
+            rep.method = MethodUsed::NearEmpty;
+            let frac = if available > S::ZERO {
+                (outflow_volume / available).clamp_to(S::ZERO, S::ONE)
+            } else {
+                S::ZERO
+            };
+            let mut d = [S::ZERO; N];
+            for i in 0..N {
+                let mixed = y0[i] + h * feed[i];
+                d[i] = h * feed[i] - frac * mixed;
+            }
+            Some(d)
+        } else {
+            let mut k = [[S::ZERO; 2]; R];
+            self.model.rate_constants(self.temperature, &mut k);
+            let frame = TickFrame {
+                h,
+                v0,
+                v1,
+                q_in,
+                q_out: outflow_volume / h,
+                feed,
+                k,
+            };
+            self.component_increment(&frame, &y0, &mut rep)
+        };
+
+        // 4. Totals.
+        match delta {
+            Some(d) if d.iter().all(|x| x.is_finite()) => {
+                for ((a, &di), &yi) in self.amounts.iter_mut().zip(d.iter()).zip(y0.iter()) {
+                    a.add(di);
+                    let v = a.value();
+                    if v < S::ZERO {
+                        // Rounding may leave −ulp; anything larger is a real clamp.
+                        if -v > S::of(8.0) * S::EPSILON * (yi.abs() + di.abs()) {
+                            rep.flags |= StatusFlags::AMOUNT_CLAMPED;
+                            rep.clamps = rep.clamps.saturating_add(1);
+                        }
+                        a.set(S::ZERO);
+                    }
+                }
+            }
+            _ => rep.flags |= StatusFlags::NUMERIC_FAULT,
+        }
+        if v1 > floor {
+            self.held = self.concentrations();
+        }
+        self.time_ms = self.next_due();
+        rep
+    }
+
+    /// Holdup increment with computed outlets: scalar MPRK22 with inflow as
+    /// production and every outflow as destruction.
+    fn holdup_increment_computed(&self, v0: S, net: S, h: S) -> S {
+        // A net inflow is production; a net measured draw joins the destruction.
+        let (p, drawn) = if net >= S::ZERO {
+            (net, S::ZERO)
+        } else {
+            (S::ZERO, -net)
+        };
+        let tiny = S::MIN_POSITIVE;
+        let d0 = drawn + self.model.computed_outflow(v0);
+        let v1s = if v0 > tiny {
+            (v0 + h * p) / (S::ONE + h * d0 / v0)
+        } else {
+            v0 + h * p
+        };
+        if !(v1s > tiny) {
+            return h * p;
+        }
+        let d1 = drawn + self.model.computed_outflow(v1s);
+        let a = S::HALF * h * (d0 + d1) / v1s;
+        (h * p - a * v0) / (S::ONE + a)
+    }
+
+    /// Component increment by the configured integrator; `None` on a
+    /// numerical fault.
+    fn component_increment(
+        &self,
+        frame: &TickFrame<S, N, R>,
+        y0: &[S; N],
+        rep: &mut StepReport<S>,
+    ) -> Option<[S; N]> {
+        let model = &self.model;
+        let rhs = TickRhs { model, frame };
+        let want_exact = match model.method {
+            Method::Auto | Method::Exact => model.exact_class,
+            _ => false,
+        };
+        if want_exact {
+            let lam = model.first_order_constants(&frame.k);
+            if let Some(d) = exact(frame, y0, &lam) {
+                rep.method = MethodUsed::Exact;
+                rep.rate_evaluations = 0;
+                return Some(d);
+            }
+            if model.method == Method::Exact {
+                rep.flags |= StatusFlags::METHOD_FALLBACK;
+            }
+        }
+        let reference = |y1: [S; N]| {
+            let mut d = [S::ZERO; N];
+            for i in 0..N {
+                d[i] = y1[i] - y0[i];
+            }
+            d
+        };
+        match model.method {
+            Method::ReferenceRk4 => {
+                rep.method = MethodUsed::ReferenceRk4;
+                rep.rate_evaluations = 4;
+                Some(reference(rk4_step(&rhs, S::ZERO, y0, frame.h)))
+            }
+            Method::ReferenceEuler => {
+                rep.method = MethodUsed::ReferenceEuler;
+                rep.rate_evaluations = 1;
+                Some(reference(euler_step(&rhs, S::ZERO, y0, frame.h)))
+            }
+            _ => {
+                rep.method = MethodUsed::Mprk22;
+                mprk22(model, frame, y0, &mut rep.rate_evaluations).ok()
+            }
+        }
+    }
+}

@@ -369,3 +369,145 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::geometry::{Bottom, Geometry, Shape};
+    use crate::model::{Kinetics, ReactionSpec, VesselSpec};
+    use heapless::Vec;
+
+    /// 1 m² flat cylinder, 2 m tall: capacity 2 m³ (diameter 2/√π).
+    fn tank(
+        outlets: &[Outlet<f64>],
+        reactions: &[ReactionSpec<f64, 2>],
+        v0: f64,
+    ) -> Vessel<f64, 2, 1, 1> {
+        let geometry = Geometry::new(Shape::VerticalCylinder {
+            diameter: 2.0 / core::f64::consts::PI.sqrt(),
+            height: 2.0,
+            bottom: Bottom::Flat,
+        })
+        .unwrap();
+        let spec = VesselSpec {
+            geometry,
+            outlets: Vec::from_slice(outlets).unwrap(),
+            reactions: Vec::from_slice(reactions).unwrap(),
+            min_holdup: 0.01,
+            tick_ms: 1000,
+            method: Method::Auto,
+        };
+        Vessel::new(
+            Model::new(spec).unwrap(),
+            &InitialState {
+                volume: v0,
+                concentrations: [10.0, 0.0],
+                temperature: 300.0,
+            },
+        )
+        .unwrap()
+    }
+
+    fn flows(q_in: f64, q_out: f64) -> Inputs<f64, 2, 1, 1> {
+        Inputs {
+            inlet_flows: [q_in],
+            feed: [[100.0, 0.0]],
+            outlet_flows: [q_out],
+            temperature: 300.0,
+        }
+    }
+
+    #[test]
+    fn overdrawn_outlet_empties_without_going_negative() {
+        let mut t = tank(&[Outlet::Measured], &[], 0.5);
+        // Asks for 1 m³ in one tick from 0.5 m³.
+        let r = t.step(&flows(0.0, 1.0));
+        assert!(r.flags.contains(StatusFlags::EMPTY));
+        assert!(r.flags.contains(StatusFlags::OUTLET_LIMITED));
+        assert_eq!(t.volume(), 0.0);
+        assert_eq!(t.amounts(), [0.0, 0.0]);
+        assert!((r.outflow_volume - 0.5).abs() < 1e-15);
+        // Concentrations are held, not 0/0.
+        assert_eq!(t.concentrations(), [10.0, 0.0]);
+        // Refill: feed composition comes back, no NaN on the way.
+        for _ in 0..100 {
+            let r = t.step(&flows(0.01, 0.0));
+            assert!(!r.flags.contains(StatusFlags::NUMERIC_FAULT));
+        }
+        assert!((t.volume() - 1.0).abs() < 1e-12);
+        assert!((t.concentrations()[0] - 100.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn overflow_clamps_at_capacity_and_spills_mixed_content() {
+        let mut t = tank(&[Outlet::Measured], &[], 1.99);
+        let r = t.step(&flows(0.05, 0.0));
+        assert!(r.flags.contains(StatusFlags::OVERFLOW));
+        assert!((t.volume() - 2.0).abs() < 1e-12);
+        assert!((r.spilled_volume - 0.04).abs() < 1e-12);
+        // Mass balance: 19.9 mol + 5 mol fed − what spilled at the mixed
+        // concentration; the amount is between the no-spill and all-feed-spill bounds.
+        let n = t.amounts()[0];
+        assert!(n > 19.9 + 5.0 - 0.04 * 100.0 && n < 19.9 + 5.0);
+    }
+
+    #[test]
+    fn bad_inputs_are_replaced_and_flagged() {
+        let mut t = tank(&[Outlet::Measured], &[], 1.0);
+        let r = t.step(&flows(f64::NAN, 0.0));
+        assert!(r.flags.contains(StatusFlags::INPUT_NOT_FINITE));
+        assert_eq!(t.volume(), 1.0);
+        let r = t.step(&flows(-1.0, 0.0));
+        assert!(r.flags.contains(StatusFlags::INPUT_NEGATIVE));
+        assert_eq!(t.volume(), 1.0);
+        let mut u = flows(0.0, 0.0);
+        u.temperature = f64::INFINITY;
+        let r = t.step(&u);
+        assert!(r.flags.contains(StatusFlags::INPUT_NOT_FINITE));
+        assert_eq!(t.temperature(), 300.0);
+        assert_eq!(t.time_ms(), 3000);
+    }
+
+    #[test]
+    fn near_empty_tick_neither_reacts_nor_divides() {
+        let fast = ReactionSpec {
+            stoichiometry: [-1.0, 1.0],
+            forward: Kinetics {
+                rate_constant: 1e3,
+                activation_energy: 0.0,
+                orders: [1.0, 0.0],
+            },
+            reverse: None,
+            reference_temperature: 300.0,
+        };
+        let mut t = tank(&[Outlet::Measured], &[fast], 0.005);
+        let before = t.amounts();
+        let r = t.step(&flows(0.0, 0.001));
+        assert!(r.flags.contains(StatusFlags::NEAR_EMPTY));
+        assert_eq!(r.method, MethodUsed::NearEmpty);
+        // 1 L of 5 L left: a fifth of the content, no conversion to B.
+        let after = t.amounts();
+        assert!((after[0] - before[0] * 0.8).abs() < 1e-15);
+        assert_eq!(after[1], 0.0);
+    }
+
+    #[test]
+    fn weir_holds_the_poleni_head_at_steady_state() {
+        // Rectangular sharp-crested weir, q = (2/3)·C_d·b·√(2g)·H^{3/2}
+        // (Poleni's formula; any open-channel hydraulics text, from memory):
+        // at steady state the head over the crest is that of the inflow.
+        let (cd, b, crest, q) = (0.62, 0.2, 1.5, 2e-3);
+        let weir = Outlet::Weir {
+            discharge_coefficient: cd,
+            width: b,
+            crest_level: crest,
+        };
+        let mut t = tank(&[weir], &[], 1.5);
+        for _ in 0..20_000 {
+            t.step(&flows(q, 0.0));
+        }
+        let g = crate::units::STANDARD_GRAVITY;
+        let head = (q / (2.0 / 3.0 * cd * b * (2.0 * g).sqrt())).powf(2.0 / 3.0);
+        assert!(((t.level() - crest) - head).abs() < 1e-9 * head.max(1.0));
+    }
+}

@@ -263,8 +263,9 @@ pub fn variable_volume<S: Scalar>() -> CaseResult {
 /// state.
 ///
 /// Reference: `k·τ·c_A0 = X/(1 − X)²` (Levenspiel, ch. 5, from memory), solved
-/// for X; the MPRK22 steady state is a fixed point of the scheme, so it is
-/// reached to rounding.
+/// for X. The split step's steady state differs from the true one by its
+/// O(h²) splitting error: 7e-7 relative at a 10 s tick, 7e-9 at 1 s
+/// (measured), hence the tick and tolerance here.
 pub fn second_order_steady<S: Scalar>() -> CaseResult {
     let (v, q, ca0, k) = (10.0, 1e-3, 100.0, 2e-6);
     let tau = v / q;
@@ -272,7 +273,7 @@ pub fn second_order_steady<S: Scalar>() -> CaseResult {
         cylinder(2.0, 5.0),
         [Outlet::Measured],
         &[reaction([-1.0], [2.0], k)],
-        10_000,
+        1000,
         Method::Auto,
         v,
         [0.0],
@@ -283,7 +284,7 @@ pub fn second_order_steady<S: Scalar>() -> CaseResult {
         outlet_flows: [S::of(q)],
         temperature: S::of(298.15),
     };
-    for _ in 0..(40.0 * tau / 10.0) as u32 {
+    for _ in 0..(40.0 * tau) as u32 {
         ves.step(&u);
     }
     let a = k * tau * ca0;
@@ -300,7 +301,7 @@ pub fn second_order_steady<S: Scalar>() -> CaseResult {
         tolerance: if scalar_name::<S>() == "f32" {
             1e-5
         } else {
-            1e-10
+            3e-8
         },
     }
 }

@@ -10,22 +10,23 @@
 //!   which at constant volume is `c_f + (c₀ − c_f)·e^{−λt}`; with first-order
 //!   consumption at constant volume, `λ = q/V + k`. Written with `expm1` and
 //!   `ln1p` so that `f32` keeps its digits when `λh` is 1e-6.
-//! * [`mprk22`] — the modified Patankar–Runge–Kutta scheme of Burchard,
-//!   Deleersnijder & Meister (Appl. Numer. Math. 47 (2003) 1–30), second
-//!   order, unconditionally positive, and conservative: every linear
-//!   invariant of the stoichiometry (`w·ν_j = 0`) is kept to rounding at any
-//!   tick. Feed is an explicit source; outflow and reactant consumption are
-//!   destruction terms weighted by `y_new/y_old`. Each reaction direction is
-//!   weighted by one species (its most depleted reactant), so the
-//!   stoichiometric ratios of every reaction hold exactly. Each stage solves
-//!   one `N × N` system on the stack.
+//! * [`split_step`] — for general networks: Strang splitting of the tick into
+//!   reactions for `h/2`, transport (feed, outflow, volume change) for `h`
+//!   by the exact step, reactions for `h/2`. The reactions are stepped by the
+//!   modified Patankar–Runge–Kutta scheme MPRK22 of Burchard, Deleersnijder
+//!   & Meister (Appl. Numer. Math. 47 (2003) 1–30): second order,
+//!   unconditionally positive, and conservative — every linear invariant of
+//!   the stoichiometry (`w·ν_j = 0`) is kept to rounding at any tick. Each
+//!   reaction direction is weighted by one species (its most depleted
+//!   reactant), so the stoichiometric ratios of every reaction hold exactly.
+//!   Each stage solves one `N × N` system on the stack.
 //! * [`euler_step`], [`rk4_step`] — reference methods for work–precision
 //!   comparisons, generic over any [`Rhs`]. Not positive: explicit Euler
 //!   goes negative at `λh > 1` and diverges at `λh > 2`.
 //!
-//! Bounds: `exact` does `N` `expm1` and one `ln1p`; `mprk22` does two
-//! rate evaluations and two `N × N` solves (`2·N³/3` multiply-adds); no loop
-//! depends on input values.
+//! Bounds: `exact` does `N` `expm1` and one `ln1p`; `split_step` does one
+//! `exact` and two MPRK22 steps, each two rate evaluations and two `N × N`
+//! solves (`N³/3` multiply-adds each); no loop depends on input values.
 
 use crate::linalg::{solve, Singular};
 use crate::model::Model;
@@ -175,18 +176,32 @@ fn tiny<S: Scalar>() -> S {
     S::MIN_POSITIVE
 }
 
-/// Add the Patankar-weighted reaction terms of one stage to the system
-/// `a·δ = r`: each direction with molar rate `rho` (already stage-averaged) is
-/// weighted by `(num_l + δ_l)/den_l` for its most depleted reactant `l`.
-fn add_reactions<S: Scalar, const N: usize, const R: usize, const O: usize>(
+/// One Patankar stage of the closed reaction system: solve
+/// `(I + Σ_j h·ρ_j·ν_j·e_lᵀ/den_l)·y_new = y0` and return `y_new − y0`.
+///
+/// Each direction with molar rate `rho` (already stage-averaged) is weighted
+/// by `y_new,l/den_l` for its most depleted reactant `l`, so every reaction
+/// keeps its stoichiometric ratios exactly.
+///
+/// Two algebraically equal forms: when the stage is mild (every weight
+/// `h·ρ/den ≤ 1`) the system is solved for the increment, which keeps the
+/// digits of a small change in `f32`; when it is stiff it is solved for
+/// `y_new` itself, whose right-hand side is just `y0`, so that a `k·h` of 1e4
+/// does not make the increment a difference of numbers 1e8 times larger
+/// (which lost the product's mass to rounding).
+fn patankar_stage<S: Scalar, const N: usize, const R: usize, const O: usize>(
     model: &Model<S, N, R, O>,
     rho: &[[S; 2]; R],
     den: &[S; N],
-    num: &[S; N],
+    y0: &[S; N],
     h: S,
-    a: &mut [[S; N]; N],
-    r: &mut [S; N],
-) {
+) -> Result<[S; N], Singular> {
+    let mut a = [[S::ZERO; N]; N];
+    for (i, row) in a.iter_mut().enumerate() {
+        row[i] = S::ONE;
+    }
+    let mut inc = [S::ZERO; N];
+    let mut stiffest = S::ZERO;
     for (reaction, p) in model.reactions.iter().zip(rho.iter()) {
         for (dir, &rate) in p.iter().enumerate() {
             if !(rate > S::ZERO) {
@@ -216,73 +231,96 @@ fn add_reactions<S: Scalar, const N: usize, const R: usize, const O: usize>(
                 continue;
             }
             let w = h * rate / den[l];
-            let weight = num[l] / den[l];
+            stiffest = stiffest.max(w * worst * den[l]);
             for i in 0..N {
                 let s = sign * reaction.nu[i];
                 if s != S::ZERO {
                     a[i][l] -= s * w;
-                    r[i] += s * h * rate * weight;
+                    inc[i] += s * w * y0[l];
                 }
             }
         }
     }
+    if stiffest <= S::ONE {
+        solve(&mut a, &mut inc)?;
+        Ok(inc)
+    } else {
+        let mut y = *y0;
+        solve(&mut a, &mut y)?;
+        for (yi, &y0i) in y.iter_mut().zip(y0.iter()) {
+            *yi = yi.max(S::ZERO) - y0i;
+        }
+        Ok(y)
+    }
 }
 
-/// Increment of the amounts over the tick by MPRK22.
-///
-/// Counts its rate evaluations into `evals`.
-pub(crate) fn mprk22<S: Scalar, const N: usize, const R: usize, const O: usize>(
+/// Increment of the amounts by the reactions alone (closed vessel at holdup
+/// `v`) over `h` seconds, by MPRK22 (Burchard, Deleersnijder & Meister 2003,
+/// with `α = 1`): a Patankar–Euler predictor, then trapezoidal rates with
+/// weights `y_new/y₁`. Counts its rate evaluations into `evals`.
+pub(crate) fn mprk22_reactions<S: Scalar, const N: usize, const R: usize, const O: usize>(
     model: &Model<S, N, R, O>,
-    fr: &TickFrame<S, N, R>,
+    k: &[[S; 2]; R],
+    v: S,
+    h: S,
     y0: &[S; N],
     evals: &mut u8,
 ) -> Result<[S; N], Singular> {
-    let h = fr.h;
-    let half_h = S::HALF * h;
-
-    // Stage 1: Patankar–Euler from y0 (weights y1/y0).
-    let mut rho0 = [[S::ZERO; 2]; R];
-    model.molar_rates(&fr.k, y0, fr.v0, &mut rho0);
-    *evals = evals.saturating_add(1);
-    let d0 = fr.q_out / fr.v0;
-    let mut a = [[S::ZERO; N]; N];
-    let mut d1 = [S::ZERO; N];
-    for i in 0..N {
-        a[i][i] = S::ONE + h * d0;
-        d1[i] = h * (fr.feed[i] - d0 * y0[i]);
+    if model.reactions.is_empty() {
+        return Ok([S::ZERO; N]);
     }
-    add_reactions(model, &rho0, y0, y0, h, &mut a, &mut d1);
-    solve(&mut a, &mut d1)?;
+    let mut rho0 = [[S::ZERO; 2]; R];
+    model.molar_rates(k, y0, v, &mut rho0);
+    let d1 = patankar_stage(model, &rho0, y0, y0, h)?;
     let mut y1 = [S::ZERO; N];
     for i in 0..N {
         y1[i] = (y0[i] + d1[i]).max(S::ZERO);
     }
-
-    // Stage 2: trapezoidal rates, weights y_new/y1.
     let mut rho1 = [[S::ZERO; 2]; R];
-    model.molar_rates(&fr.k, &y1, fr.v1, &mut rho1);
-    *evals = evals.saturating_add(1);
-    let dv1 = fr.q_out / fr.v1;
+    model.molar_rates(k, &y1, v, &mut rho1);
+    *evals = evals.saturating_add(2);
     let mut rho = [[S::ZERO; 2]; R];
     for ((m, p0), p1) in rho.iter_mut().zip(rho0.iter()).zip(rho1.iter()) {
         m[0] = S::HALF * (p0[0] + p1[0]);
         m[1] = S::HALF * (p0[1] + p1[1]);
     }
-    let mut a = [[S::ZERO; N]; N];
+    patankar_stage(model, &rho, &y1, y0, h)
+}
+
+/// Increment of the amounts over a tick with reactions, by Strang
+/// splitting: reactions for `h/2` at `V₀` (MPRK22), transport (feed, outflow,
+/// volume change) for `h` by the exact step, reactions for `h/2` at `V₁`.
+///
+/// Second order like its parts; positive because each part is; conservative
+/// because in a closed vessel the transport part is the identity; and a
+/// species that takes part in no reaction is advanced by the exact step
+/// alone, so it never leaves the range of its initial and feed
+/// concentrations, however many residence times a tick spans (an unsplit
+/// MPRK22 overshoots the feed when `h·q/V > 2`). Reactions go outside so
+/// that a reagent consumed far faster than the tick leaves the tick reacted,
+/// not as freshly fed material.
+pub(crate) fn split_step<S: Scalar, const N: usize, const R: usize, const O: usize>(
+    model: &Model<S, N, R, O>,
+    fr: &TickFrame<S, N, R>,
+    y0: &[S; N],
+    evals: &mut u8,
+) -> Result<[S; N], Singular> {
+    let half = S::HALF * fr.h;
+    let da = mprk22_reactions(model, &fr.k, fr.v0, half, y0, evals)?;
+    let mut ya = [S::ZERO; N];
+    for i in 0..N {
+        ya[i] = (y0[i] + da[i]).max(S::ZERO);
+    }
+    let dt = exact(fr, &ya, &[S::ZERO; N]).unwrap_or([S::ZERO; N]);
+    let mut yb = [S::ZERO; N];
+    for i in 0..N {
+        yb[i] = (ya[i] + dt[i]).max(S::ZERO);
+    }
+    let db = mprk22_reactions(model, &fr.k, fr.v1, half, &yb, evals)?;
     let mut d = [S::ZERO; N];
     for i in 0..N {
-        // Outflow destruction, mol/s summed over both stages.
-        let dbar = d0 * y0[i] + dv1 * y1[i];
-        if y1[i] > tiny() {
-            a[i][i] = S::ONE + half_h * dbar / y1[i];
-            d[i] = h * fr.feed[i] - half_h * dbar * (y0[i] / y1[i]);
-        } else {
-            a[i][i] = S::ONE;
-            d[i] = h * fr.feed[i];
-        }
+        d[i] = da[i] + dt[i] + db[i];
     }
-    add_reactions(model, &rho, &y1, y0, h, &mut a, &mut d);
-    solve(&mut a, &mut d)?;
     Ok(d)
 }
 

@@ -92,8 +92,9 @@ pub enum Method {
     /// linear and uncoupled. A tick with changing volume and a reaction falls
     /// back to MPRK22 and says so.
     Exact,
-    /// Modified Patankar–Runge–Kutta (MPRK22): positive and conservative at
-    /// any tick, second order.
+    /// Reactions by the modified Patankar–Runge–Kutta scheme (MPRK22) around
+    /// an exact transport step (Strang splitting): positive and conservative
+    /// at any tick, second order.
     Mprk22,
     /// Reference only: classical RK4. Loses positivity at large `k·h`;
     /// negative amounts are clamped and flagged.

@@ -104,7 +104,8 @@ pub enum MethodUsed {
     /// Closed-form step (linear, uncoupled).
     #[default]
     Exact,
-    /// Modified Patankar–Runge–Kutta, second order.
+    /// Reactions by MPRK22 (modified Patankar–Runge–Kutta, second order)
+    /// around an exact transport step (Strang splitting).
     Mprk22,
     /// Reference: classical Runge–Kutta, fourth order (not positivity-preserving).
     ReferenceRk4,

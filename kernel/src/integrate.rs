@@ -5,12 +5,12 @@
 //! held: feed `F_i` (mol/s), outflow `q` (m³/s), holdup `V(t)` linear from
 //! `V₀` to `V₁`, temperature fixed.
 //!
-//! * [`exact`] — closed form for the linear, uncoupled class: with no
+//! * `exact` — closed form for the linear, uncoupled class: with no
 //!   reaction, `c(t) = c_f + (c₀ − c_f)·(V₀/V(t))^{q_in/(q_in − q_out)}`,
 //!   which at constant volume is `c_f + (c₀ − c_f)·e^{−λt}`; with first-order
 //!   consumption at constant volume, `λ = q/V + k`. Written with `expm1` and
 //!   `ln1p` so that `f32` keeps its digits when `λh` is 1e-6.
-//! * [`split_step`] — for general networks: Strang splitting of the tick into
+//! * `split_step` — for general networks: Strang splitting of the tick into
 //!   reactions for `h/2`, transport (feed, outflow, volume change) for `h`
 //!   by the exact step, reactions for `h/2`. The reactions are stepped by the
 //!   modified Patankar–Runge–Kutta scheme MPRK22 of Burchard, Deleersnijder

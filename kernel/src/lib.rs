@@ -43,7 +43,7 @@
 //! | [`vessel`] | the state and its [`Vessel::step`] |
 //! | [`status`] | status flags and what a tick reports |
 //! | [`error`] | the one error enum |
-//! | [`reference`] | the reference configuration (benchmarks, firmware, demo) |
+//! | [`reference`](mod@reference) | the reference configuration (benchmarks, firmware, demo) |
 //!
 //! ## Real-time contract
 //!

@@ -1,5 +1,19 @@
-//! Host side of holdup: analytic verification, the demo plant, and (later)
-//! replay of historian logs through the same kernel that runs on the gateway.
+//! Host side of holdup: replay of historian logs through the same kernel
+//! that runs on the gateway, the demo plant, and analytic verification.
+//!
+//! Layers, in the order data flows: [`config`] (TOML → [`plant::Plant`], with
+//! [`units`]), [`log`] (streaming CSV → resampled tag values), [`lab`] (lab
+//! results), [`to_kernel`] (plant → kernel types), [`replay`] (the tick loop,
+//! estimates, summary), [`plot`] (SVG figures); [`demo`] generates an
+//! invented plant's files; [`verify`] holds the analytic cases.
 
+pub mod config;
 pub mod demo;
+pub mod lab;
+pub mod log;
+pub mod plant;
+pub mod plot;
+pub mod replay;
+pub mod to_kernel;
+pub mod units;
 pub mod verify;

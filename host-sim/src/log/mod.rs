@@ -1,0 +1,819 @@
+//! Streaming historian-log reader and resampler.
+//!
+//! A [`LogReader`] reads a CSV log row by row and answers, for a
+//! non-decreasing sequence of times, the value of every asked-for tag
+//! ([`LogReader::sample`]), counting every value it had to repair, hold or
+//! reject in [`LogStats`].
+//!
+//! # Formats
+//!
+//! Comma-separated, a header row required (a UTF-8 byte-order mark and
+//! `\r\n` line ends are accepted; fields may be quoted with `"`, a quoted
+//! field ends on its own line).
+//!
+//! - **Wide**: a timestamp column (named by [`LogOptions::time_column`],
+//!   matched exactly, then ignoring ASCII case; default the first column)
+//!   and one column per tag, named exactly as the tag. Other columns are
+//!   ignored. Rows may be irregular in time.
+//! - **Long**: columns `time` (or `timestamp`, or the configured
+//!   `time_column`), `tag`, `value` and optionally `quality`, header names
+//!   matched ignoring ASCII case, in any order; other columns are ignored.
+//!   One stored point per row, rows in time order; a tag appears only when
+//!   it was stored (exception-compressed). Tag values are matched exactly
+//!   (after trimming blanks); rows of other tags are counted and skipped.
+//!   Quality is `good`, `uncertain` or `bad` (any case) or a number read the
+//!   way OPC-style quality codes commonly are (common practice, not a
+//!   standard this reader claims): ≥ 192 good, 64–191 uncertain, < 64 bad.
+//!   An empty quality cell is good; other text is treated as uncertain.
+//!   Bad points are rejected, uncertain ones used; both are counted.
+//! - **Auto** ([`LogFormat::Auto`]): long if the header has both a `tag` and
+//!   a `value` column, wide otherwise.
+//!
+//! Timestamps are epoch seconds (decimals allowed) or ISO 8601 / RFC 3339
+//! with an offset (`2026-03-01T06:00:00+01:00`, `2026-03-01T05:00:00Z`,
+//! fractional seconds allowed); [`TimeFormat::Auto`] decides on the first
+//! data row whose timestamp is either. A date-time without an offset is an
+//! error ([`LogError::NoOffset`]): local times are ambiguous. Internally time
+//! is `i64` milliseconds since the Unix epoch.
+//!
+//! A value cell that is empty, `NaN`, infinite or not a number is a missing
+//! value of that tag at that row (counted). A negative value of a
+//! `non_negative` tag is clamped to 0 (counted, raw value kept in the list).
+//!
+//! # Resampling
+//!
+//! For each tag the reader keeps the last stored point at or before the
+//! sample time `t` (`p`) and a queue of the points read ahead (after `t`):
+//!
+//! - a point at `t`: [`SampleState::Exact`];
+//! - linear tag, next point `n` with `n.t − p.t ≤ max_age`: linear between
+//!   them, [`SampleState::Interpolated`];
+//! - otherwise (hold tags; linear across a gap or after the last point): the
+//!   value of `p`, [`SampleState::Held`] while `t − p.t ≤ max_age`, then
+//!   [`SampleState::Stale`];
+//! - no point yet: `NaN`, [`SampleState::Missing`].
+//!
+//! `sample` returns `None` once `t` is past the last stored point of the
+//! whole log (for every tag asked for).
+//!
+//! # Memory bound
+//!
+//! The reader reads ahead only as far as `t` needs: until a row later than
+//! `t` has been read and, for each linear tag with a point `p ≤ t`, until its
+//! next point or a row later than `p.t + max_age` (and, to tell the end of
+//! the log, until some tag has a point after `t`). The buffered points are
+//! therefore those of the rows within `max_age` (largest of the linear tags)
+//! after `t`, plus one row; rows of other tags and rows without valid
+//! values are never buffered. For a dense log this is one row; for an
+//! exception-compressed log it is at most the points stored within
+//! `max_age`. A hard limit of [`MAX_BUFFERED_POINTS`] stops a log too dense
+//! for its `max_age` with [`LogError::LookAheadOverflow`] instead of growing.
+//! Lines are read with a bounded buffer (1 MiB per line), and the fault lists
+//! keep the first [`KEEP_FIRST`] occurrences with a total count.
+
+mod cells;
+mod error;
+mod header;
+mod lines;
+mod stats;
+pub mod time;
+
+#[cfg(test)]
+mod tests;
+
+use std::collections::VecDeque;
+use std::fmt;
+use std::fs::File;
+use std::io::Read;
+use std::path::Path;
+
+use crate::plant::{Interpolation, LogFormat, LogOptions, TagOptions, TimeFormat};
+use cells::{missing_detail, parse_quality, parse_value, Quality};
+use error::shown;
+pub use error::LogError;
+use header::Layout;
+use lines::{is_blank, Fields, Line, LineReader};
+pub use stats::{Fault, FaultList, LogStats, StateTicks, TagStats, Window, WindowList, KEEP_FIRST};
+use time::{looks_numeric, parse_epoch, parse_iso, TimeError};
+
+/// Default flat-line age, ms (30 min).
+pub const DEFAULT_FLAT_LINE_MS: u64 = 30 * 60 * 1000;
+
+/// Most stored points buffered at once, all tags (about 64 MB).
+pub const MAX_BUFFERED_POINTS: usize = 2_000_000;
+
+/// The value of one tag at a sample time.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct TagSample {
+    /// Raw log value (not converted to SI); `NaN` when there is no point yet.
+    pub value: f64,
+    /// How the value was obtained.
+    pub state: SampleState,
+}
+
+/// How a sampled value was obtained.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum SampleState {
+    /// A stored point at the sample time.
+    Exact,
+    /// Linear between the stored points around the sample time.
+    Interpolated,
+    /// The last stored value, held (hold interpolation, or no next point
+    /// within the maximum age), at most the maximum age old.
+    Held,
+    /// The last stored value, older than the maximum age, with no newer point.
+    Stale,
+    /// No stored point yet: the value is `NaN`.
+    Missing,
+}
+
+#[derive(Clone, Copy, Debug)]
+struct Point {
+    t: i64,
+    v: f64,
+    line: u64,
+}
+
+#[derive(Clone, Copy, Debug)]
+struct FlatRun {
+    bits: u64,
+    start: Point,
+    end: Point,
+}
+
+/// Replay state of one tag.
+#[derive(Debug)]
+struct TagState {
+    linear: bool,
+    non_negative: bool,
+    /// Maximum age, ms (saturated to `i64::MAX`).
+    max_age: i64,
+    /// Last stored point at or before the last sample time.
+    prev: Option<Point>,
+    /// Points read ahead, after `prev`, in time order.
+    queue: VecDeque<Point>,
+    /// Current run of identical values.
+    flat: Option<FlatRun>,
+}
+
+impl TagState {
+    fn last(&self) -> Option<&Point> {
+        self.queue.back().or(self.prev.as_ref())
+    }
+    fn last_mut(&mut self) -> Option<&mut Point> {
+        match self.queue.back_mut() {
+            Some(p) => Some(p),
+            None => self.prev.as_mut(),
+        }
+    }
+}
+
+/// Counters shared by all tags while storing points.
+#[derive(Debug)]
+struct Buffer {
+    /// Most points allowed ([`MAX_BUFFERED_POINTS`]; lower in tests).
+    limit: usize,
+    buffered: usize,
+    peak: usize,
+    first_point: Option<i64>,
+    last_point: Option<i64>,
+}
+
+/// Streaming reader and resampler of one historian log.
+pub struct LogReader {
+    path: String,
+    lines: LineReader,
+    fields: Fields,
+    layout: Layout,
+    time_col_name: String,
+    time_format: TimeFormat,
+    flat_line_ms: i64,
+    tags: Vec<TagState>,
+    stats: LogStats,
+    buffer: Buffer,
+    /// Time of the last accepted row.
+    frontier: Option<i64>,
+    /// Line of the last line read.
+    line: u64,
+    eof: bool,
+    finished: bool,
+    last_sample: Option<i64>,
+    out: Vec<TagSample>,
+}
+
+impl fmt::Debug for LogReader {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.debug_struct("LogReader")
+            .field("path", &self.path)
+            .field("line", &self.line)
+            .field("frontier", &self.frontier)
+            .field("eof", &self.eof)
+            .finish_non_exhaustive()
+    }
+}
+
+impl LogReader {
+    /// Open a log and read its header, with the default flat-line age.
+    ///
+    /// Errors: the file cannot be opened, no header row, a tag absent from a
+    /// wide header (the error lists the columns), no timestamp column, long
+    /// format without `tag`/`value` columns.
+    pub fn open(path: &Path, opts: &LogOptions, tags: &[TagOptions]) -> Result<Self, LogError> {
+        Self::open_with(path, opts, tags, DEFAULT_FLAT_LINE_MS)
+    }
+
+    /// As [`LogReader::open`], with a flat-line age in ms (0: no flat-line
+    /// detection).
+    pub fn open_with(
+        path: &Path,
+        opts: &LogOptions,
+        tags: &[TagOptions],
+        flat_line_ms: u64,
+    ) -> Result<Self, LogError> {
+        let name = path.display().to_string();
+        let file = File::open(path).map_err(|source| LogError::Open {
+            path: name.clone(),
+            source,
+        })?;
+        Self::from_reader(Box::new(file), &name, opts, tags, flat_line_ms)
+    }
+
+    /// Read a log from any reader (`name` is used in messages and stats).
+    pub fn from_reader(
+        reader: Box<dyn Read>,
+        name: &str,
+        opts: &LogOptions,
+        tags: &[TagOptions],
+        flat_line_ms: u64,
+    ) -> Result<Self, LogError> {
+        let path = name.to_string();
+        let mut lines = LineReader::new(reader);
+        let read_err = |line, source| LogError::Read {
+            path: path.clone(),
+            line,
+            source,
+        };
+        if lines.starts_utf16().map_err(|e| read_err(0, e))? {
+            return Err(LogError::Utf16 { path });
+        }
+        let mut blank = 0;
+        let header_line = loop {
+            match lines.next_line().map_err(|e| read_err(blank, e))? {
+                Line::End => {
+                    return Err(LogError::NoHeader {
+                        path,
+                        found: "the file is empty or blank".into(),
+                    })
+                }
+                Line::TooLong(n) => {
+                    return Err(LogError::BadHeader {
+                        path,
+                        line: n,
+                        why: "line longer than 1 MiB",
+                    })
+                }
+                Line::Text(n) if is_blank(lines.line()) => blank = n,
+                Line::Text(n) => break n,
+            }
+        };
+        let mut fields = Fields::default();
+        fields
+            .split(lines.line())
+            .map_err(|e| LogError::BadHeader {
+                path: path.clone(),
+                line: header_line,
+                why: match e {
+                    lines::SplitError::UnterminatedQuote => "a quote is not closed",
+                    lines::SplitError::TextAfterQuote => "text after a closing quote",
+                },
+            })?;
+        let header: Vec<String> = (0..fields.len())
+            .map(|i| String::from_utf8_lossy(fields.get(i)).into_owned())
+            .collect();
+        let (layout, time_col) = header::layout(path.clone(), header_line, &header, opts, tags)?;
+        let states: Vec<TagState> = tags
+            .iter()
+            .map(|t| TagState {
+                linear: t.interpolation == Interpolation::Linear,
+                non_negative: t.non_negative,
+                max_age: i64::try_from(t.max_age_ms).unwrap_or(i64::MAX),
+                prev: None,
+                queue: VecDeque::new(),
+                flat: None,
+            })
+            .collect();
+        let time_col_name = header.get(time_col).cloned().unwrap_or_default();
+        let stats = LogStats {
+            path: path.clone(),
+            format: if matches!(layout, Layout::Long { .. }) {
+                LogFormat::Long
+            } else {
+                LogFormat::Wide
+            },
+            time: opts.time,
+            flat_line_ms,
+            lines: header_line,
+            rows: 0,
+            blank_lines: blank,
+            rows_other_tags: 0,
+            bad_time: FaultList::default(),
+            backwards: FaultList::default(),
+            wrong_fields: FaultList::default(),
+            malformed: FaultList::default(),
+            duplicate_rows: FaultList::default(),
+            peak_buffered_points: 0,
+            tags: tags
+                .iter()
+                .map(|t| TagStats {
+                    tag: t.tag.clone(),
+                    max_age_ms: t.max_age_ms,
+                    ..TagStats::default()
+                })
+                .collect(),
+        };
+        Ok(Self {
+            path,
+            lines,
+            fields,
+            layout,
+            time_col_name,
+            time_format: opts.time,
+            flat_line_ms: i64::try_from(flat_line_ms).unwrap_or(i64::MAX),
+            tags: states,
+            stats,
+            buffer: Buffer {
+                limit: MAX_BUFFERED_POINTS,
+                buffered: 0,
+                peak: 0,
+                first_point: None,
+                last_point: None,
+            },
+            frontier: None,
+            line: header_line,
+            eof: false,
+            finished: false,
+            last_sample: None,
+            out: vec![
+                TagSample {
+                    value: f64::NAN,
+                    state: SampleState::Missing,
+                };
+                tags.len()
+            ],
+        })
+    }
+
+    /// Counts so far (complete once the log has been read to its end).
+    pub fn stats(&self) -> &LogStats {
+        &self.stats
+    }
+
+    /// Most stored points buffered at once so far, all tags.
+    pub fn peak_buffered_points(&self) -> usize {
+        self.buffer.peak
+    }
+
+    /// Stored points buffered now, all tags.
+    pub fn buffered_points(&self) -> usize {
+        self.buffer.buffered
+    }
+
+    /// Time of the first valid stored point of any tag asked for, ms (reads
+    /// ahead as needed; rows without a valid value are not buffered). `None`
+    /// if the log holds no valid point.
+    pub fn first_time(&mut self) -> Result<Option<i64>, LogError> {
+        while self.buffer.first_point.is_none() && !self.eof {
+            self.read_row()?;
+        }
+        Ok(self.buffer.first_point)
+    }
+
+    /// Values of all tags (in the order asked for) at time `t`, ms since the
+    /// epoch. Calls must have non-decreasing `t`. `None` once `t` is past the
+    /// last stored point of the whole log (end of replay).
+    pub fn sample(&mut self, t: i64) -> Result<Option<&[TagSample]>, LogError> {
+        if let Some(previous) = self.last_sample {
+            if t < previous {
+                return Err(LogError::SampleBackwards {
+                    path: self.path.clone(),
+                    t,
+                    previous,
+                });
+            }
+        }
+        self.last_sample = Some(t);
+        if self.finished {
+            return Ok(None);
+        }
+        loop {
+            self.consume_upto(t);
+            if self.eof || self.read_enough(t) {
+                break;
+            }
+            self.read_row()?;
+        }
+        let all_consumed = self.tags.iter().all(|s| s.queue.is_empty());
+        if self.eof && all_consumed && self.buffer.last_point.is_none_or(|last| t > last) {
+            self.finished = true;
+            return Ok(None);
+        }
+        for ((state, ts), out) in self
+            .tags
+            .iter()
+            .zip(self.stats.tags.iter_mut())
+            .zip(self.out.iter_mut())
+        {
+            *out = resample(state, t);
+            let ticks = &mut ts.ticks;
+            match out.state {
+                SampleState::Exact => ticks.exact += 1,
+                SampleState::Interpolated => ticks.interpolated += 1,
+                SampleState::Held => ticks.held += 1,
+                SampleState::Stale => ticks.stale += 1,
+                SampleState::Missing => ticks.missing += 1,
+            }
+        }
+        Ok(Some(&self.out))
+    }
+
+    /// Move every queued point at or before `t` into `prev`.
+    fn consume_upto(&mut self, t: i64) {
+        for s in &mut self.tags {
+            while s.queue.front().is_some_and(|p| p.t <= t) {
+                if let Some(p) = s.queue.pop_front() {
+                    s.prev = Some(p);
+                    self.buffer.buffered = self.buffer.buffered.saturating_sub(1);
+                }
+            }
+        }
+    }
+
+    /// Has enough been read to answer for `t` (after [`Self::consume_upto`])?
+    fn read_enough(&self, t: i64) -> bool {
+        let Some(frontier) = self.frontier else {
+            return false;
+        };
+        if frontier <= t {
+            return false;
+        }
+        let mut any_later = false;
+        for s in &self.tags {
+            if !s.queue.is_empty() {
+                any_later = true;
+            } else if let (true, Some(p)) = (s.linear, &s.prev) {
+                if frontier <= p.t.saturating_add(s.max_age) {
+                    return false;
+                }
+            }
+        }
+        // With no point after t anywhere, read on (without buffering: rows
+        // holding no valid point add nothing) to tell the end of the log.
+        any_later
+    }
+
+    /// Read one line and store what it holds.
+    fn read_row(&mut self) -> Result<(), LogError> {
+        let next = self.lines.next_line().map_err(|source| LogError::Read {
+            path: self.path.clone(),
+            line: self.line,
+            source,
+        })?;
+        let line = match next {
+            Line::End => {
+                self.end_of_file();
+                return Ok(());
+            }
+            Line::TooLong(n) => {
+                self.line = n;
+                self.stats.lines = n;
+                self.stats.rows += 1;
+                self.stats
+                    .malformed
+                    .push(n, None, None, || "line longer than 1 MiB".into());
+                return Ok(());
+            }
+            Line::Text(n) => n,
+        };
+        self.line = line;
+        self.stats.lines = line;
+        if is_blank(self.lines.line()) {
+            self.stats.blank_lines += 1;
+            return Ok(());
+        }
+        self.stats.rows += 1;
+        if let Err(e) = self.fields.split(self.lines.line()) {
+            self.stats.malformed.push(line, None, None, || match e {
+                lines::SplitError::UnterminatedQuote => "a quote is not closed".into(),
+                lines::SplitError::TextAfterQuote => "text after a closing quote".into(),
+            });
+            return Ok(());
+        }
+        match &self.layout {
+            Layout::Wide {
+                time_col, width, ..
+            } => {
+                let (time_col, width) = (*time_col, *width);
+                self.wide_row(line, time_col, width)
+            }
+            Layout::Long { .. } => self.long_row(line),
+        }
+    }
+
+    fn wrong_fields(&mut self, line: u64, width: usize) -> bool {
+        let found = self.fields.len();
+        if found == width {
+            return false;
+        }
+        self.stats.wrong_fields.push(line, None, None, || {
+            format!("{found} fields, the header has {width}")
+        });
+        true
+    }
+
+    fn wide_row(&mut self, line: u64, time_col: usize, width: usize) -> Result<(), LogError> {
+        if self.wrong_fields(line, width) {
+            return Ok(());
+        }
+        let Some(t) = self.row_time(line, time_col)? else {
+            return Ok(());
+        };
+        if self.frontier == Some(t) {
+            self.stats
+                .duplicate_rows
+                .push(line, Some(t), None, String::new);
+        }
+        self.frontier = Some(t);
+        for k in 0..self.tags.len() {
+            let col = match &self.layout {
+                Layout::Wide { columns, .. } => columns.get(k).copied(),
+                Layout::Long { .. } => None,
+            };
+            let Some(col) = col else {
+                continue;
+            };
+            let cell = self.fields.get(col);
+            match parse_value(cell) {
+                Ok(v) => self.store(k, t, v, line)?,
+                Err(why) => {
+                    if let Some(ts) = self.stats.tags.get_mut(k) {
+                        ts.missing
+                            .push(line, Some(t), None, || missing_detail(&why, cell));
+                    }
+                }
+            }
+        }
+        Ok(())
+    }
+
+    fn long_row(&mut self, line: u64) -> Result<(), LogError> {
+        let Layout::Long {
+            time_col,
+            tag_col,
+            value_col,
+            quality_col,
+            width,
+            index,
+        } = &self.layout
+        else {
+            return Ok(());
+        };
+        let (time_col, value_col, quality_col, width) =
+            (*time_col, *value_col, *quality_col, *width);
+        let found = self.fields.len();
+        if found != width {
+            self.stats.wrong_fields.push(line, None, None, || {
+                format!("{found} fields, the header has {width}")
+            });
+            return Ok(());
+        }
+        let Some(&k) = index.get(self.fields.get(*tag_col)) else {
+            self.stats.rows_other_tags += 1;
+            return Ok(());
+        };
+        let Some(t) = self.row_time(line, time_col)? else {
+            return Ok(());
+        };
+        self.frontier = Some(t);
+        let quality = quality_col.map_or(Quality::Good, |c| parse_quality(self.fields.get(c)));
+        let cell = self.fields.get(value_col);
+        let Some(ts) = self.stats.tags.get_mut(k) else {
+            return Ok(());
+        };
+        let value = parse_value(cell);
+        let raw = value.as_ref().ok().copied();
+        let qtext = || shown(quality_col.map_or(&b""[..], |c| self.fields.get(c)));
+        match quality {
+            Quality::Bad => {
+                ts.bad_quality
+                    .push(line, Some(t), raw, || format!("quality '{}'", qtext()));
+                return Ok(());
+            }
+            Quality::Uncertain => {
+                ts.uncertain_quality
+                    .push(line, Some(t), raw, || format!("quality '{}'", qtext()));
+            }
+            Quality::Unrecognised => {
+                ts.uncertain_quality.push(line, Some(t), raw, || {
+                    format!("unrecognised quality '{}', used as uncertain", qtext())
+                });
+            }
+            Quality::Good => {}
+        }
+        match value {
+            Ok(v) => self.store(k, t, v, line),
+            Err(why) => {
+                ts.missing
+                    .push(line, Some(t), None, || missing_detail(&why, cell));
+                Ok(())
+            }
+        }
+    }
+
+    /// The row's time, or `None` when rejected (counted). Also decides the
+    /// time notation on the first readable timestamp.
+    fn row_time(&mut self, line: u64, time_col: usize) -> Result<Option<i64>, LogError> {
+        let text = self.fields.get(time_col);
+        let parsed = match self.time_format {
+            TimeFormat::Epoch => parse_epoch(text),
+            TimeFormat::Iso8601 => parse_iso(text),
+            TimeFormat::Auto => {
+                if looks_numeric(text) {
+                    self.time_format = TimeFormat::Epoch;
+                    parse_epoch(text)
+                } else {
+                    let r = parse_iso(text);
+                    if r.is_ok() {
+                        self.time_format = TimeFormat::Iso8601;
+                    }
+                    r
+                }
+            }
+        };
+        self.stats.time = self.time_format;
+        let t = match parsed {
+            Ok(t) => t,
+            Err(TimeError::NoOffset) => {
+                return Err(LogError::NoOffset {
+                    path: self.path.clone(),
+                    line,
+                    column: self.time_col_name.clone(),
+                    text: shown(text),
+                })
+            }
+            Err(TimeError::Invalid(why)) => {
+                let expected = match self.time_format {
+                    TimeFormat::Epoch => "epoch seconds",
+                    TimeFormat::Iso8601 => "ISO 8601",
+                    TimeFormat::Auto => "epoch seconds or ISO 8601",
+                };
+                self.stats.bad_time.push(line, None, None, || {
+                    format!("'{}' is not {expected}: {why}", shown(text))
+                });
+                return Ok(None);
+            }
+        };
+        if let Some(f) = self.frontier {
+            if t < f {
+                self.stats.backwards.push(line, Some(t), None, || {
+                    format!("previous row at {}", time::format_ms(f))
+                });
+                return Ok(None);
+            }
+        }
+        Ok(Some(t))
+    }
+
+    /// Store a valid value of tag `k` at `t`: clamp, duplicates, gaps, flat
+    /// lines, look-ahead bound.
+    fn store(&mut self, k: usize, t: i64, raw: f64, line: u64) -> Result<(), LogError> {
+        let (Some(s), Some(ts)) = (self.tags.get_mut(k), self.stats.tags.get_mut(k)) else {
+            return Ok(());
+        };
+        let mut v = raw;
+        if s.non_negative && raw < 0.0 {
+            ts.clamped.push(line, Some(t), Some(raw), String::new);
+            v = 0.0;
+        }
+        let point = Point { t, v, line };
+        // Flat lines: analog (linear) tags only, a discrete signal is meant
+        // to stay put. They follow the raw value (a transmitter stuck below
+        // zero is stuck all the same).
+        if s.linear && self.flat_line_ms > 0 {
+            let bits = raw.to_bits();
+            match &mut s.flat {
+                Some(run) if run.bits == bits => run.end = point,
+                run => {
+                    if let Some(done) = run.take() {
+                        close_flat(&done, self.flat_line_ms, ts);
+                    }
+                    *run = Some(FlatRun {
+                        bits,
+                        start: point,
+                        end: point,
+                    });
+                }
+            }
+        }
+        match s.last_mut() {
+            Some(last) if last.t == t => {
+                let old = last.v;
+                let old_line = last.line;
+                *last = point;
+                ts.duplicates.push(line, Some(t), Some(old), || {
+                    format!("replaces the value of line {old_line}")
+                });
+                return Ok(());
+            }
+            _ => {}
+        }
+        if self.buffer.buffered >= self.buffer.limit {
+            return Err(LogError::LookAheadOverflow {
+                path: self.path.clone(),
+                line,
+                limit: self.buffer.limit,
+            });
+        }
+        if let Some(last) = s.last() {
+            if t.saturating_sub(last.t) > s.max_age {
+                ts.gaps.push(Window {
+                    start: last.t,
+                    end: t,
+                    start_line: last.line,
+                    end_line: line,
+                });
+            }
+        }
+        s.queue.push_back(point);
+        ts.points += 1;
+        ts.first_time.get_or_insert(t);
+        ts.last_time = Some(t);
+        let b = &mut self.buffer;
+        b.buffered += 1;
+        b.peak = b.peak.max(b.buffered);
+        b.first_point.get_or_insert(t);
+        b.last_point = Some(b.last_point.map_or(t, |l| l.max(t)));
+        self.stats.peak_buffered_points = b.peak;
+        Ok(())
+    }
+
+    fn end_of_file(&mut self) {
+        if self.eof {
+            return;
+        }
+        self.eof = true;
+        for (s, ts) in self.tags.iter_mut().zip(self.stats.tags.iter_mut()) {
+            if let Some(run) = s.flat.take() {
+                close_flat(&run, self.flat_line_ms, ts);
+            }
+        }
+    }
+}
+
+fn close_flat(run: &FlatRun, flat_line_ms: i64, ts: &mut TagStats) {
+    if flat_line_ms > 0 && run.end.t.saturating_sub(run.start.t) > flat_line_ms {
+        ts.flat_lines.push(Window {
+            start: run.start.t,
+            end: run.end.t,
+            start_line: run.start.line,
+            end_line: run.end.line,
+        });
+    }
+}
+
+/// The value of one tag at `t`, all points ≤ `t` consumed.
+fn resample(s: &TagState, t: i64) -> TagSample {
+    let Some(p) = s.prev else {
+        return TagSample {
+            value: f64::NAN,
+            state: SampleState::Missing,
+        };
+    };
+    if p.t == t {
+        return TagSample {
+            value: p.v,
+            state: SampleState::Exact,
+        };
+    }
+    if s.linear {
+        if let Some(n) = s.queue.front() {
+            let span = n.t.saturating_sub(p.t);
+            if span > 0 && span <= s.max_age {
+                let f = t.saturating_sub(p.t) as f64 / span as f64;
+                let mut value = p.v + (n.v - p.v) * f;
+                if !value.is_finite() {
+                    value = p.v * (1.0 - f) + n.v * f;
+                }
+                return TagSample {
+                    value,
+                    state: SampleState::Interpolated,
+                };
+            }
+        }
+    }
+    let state = if t.saturating_sub(p.t) <= s.max_age {
+        SampleState::Held
+    } else {
+        SampleState::Stale
+    };
+    TagSample { value: p.v, state }
+}

@@ -1,0 +1,402 @@
+//! What the reader counted: plain data with public fields (ready for a
+//! serialiser), bounded lists of the first occurrences, and a summary for
+//! people.
+
+use super::time::{format_duration, format_ms};
+use crate::plant::{LogFormat, TimeFormat};
+
+/// How many occurrences of each kind are kept with their details; the rest
+/// are only counted.
+pub const KEEP_FIRST: usize = 50;
+
+/// One occurrence of a fault at a line of the log.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Fault {
+    /// 1-based line of the log.
+    pub line: u64,
+    /// Time of the row, ms since the epoch, when it could be read.
+    pub time: Option<i64>,
+    /// The value concerned (raw value of a clamped point), when numeric.
+    pub value: Option<f64>,
+    /// Short detail: the offending text, a reason, field counts.
+    pub detail: String,
+}
+
+/// A count of faults of one kind and the first [`KEEP_FIRST`] of them.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct FaultList {
+    /// Every occurrence.
+    pub total: u64,
+    /// The first occurrences, in file order.
+    pub first: Vec<Fault>,
+}
+
+impl FaultList {
+    /// Count one occurrence; the detail is only built while it is kept.
+    pub fn push(
+        &mut self,
+        line: u64,
+        time: Option<i64>,
+        value: Option<f64>,
+        detail: impl FnOnce() -> String,
+    ) {
+        self.total += 1;
+        if self.first.len() < KEEP_FIRST {
+            self.first.push(Fault {
+                line,
+                time,
+                value,
+                detail: detail(),
+            });
+        }
+    }
+}
+
+/// An interval of the log, `[start, end]` ms since the epoch, with the lines
+/// of its two ends.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Window {
+    /// Start, ms since the epoch.
+    pub start: i64,
+    /// End, ms since the epoch.
+    pub end: i64,
+    /// Line of the start.
+    pub start_line: u64,
+    /// Line of the end.
+    pub end_line: u64,
+}
+
+/// A count of windows of one kind, their summed length and the first
+/// [`KEEP_FIRST`] of them.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct WindowList {
+    /// Every window.
+    pub total: u64,
+    /// Summed length of every window, ms.
+    pub total_ms: u64,
+    /// The first windows, in time order.
+    pub first: Vec<Window>,
+}
+
+impl WindowList {
+    /// Record a window.
+    pub fn push(&mut self, w: Window) {
+        self.total += 1;
+        self.total_ms = self
+            .total_ms
+            .saturating_add(w.end.saturating_sub(w.start).unsigned_abs());
+        if self.first.len() < KEEP_FIRST {
+            self.first.push(w);
+        }
+    }
+}
+
+/// How many `sample` calls returned each state, for one tag.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct StateTicks {
+    /// A stored point at the sample time.
+    pub exact: u64,
+    /// Linear between two stored points.
+    pub interpolated: u64,
+    /// Last value held, within the maximum age.
+    pub held: u64,
+    /// Last value held, older than the maximum age.
+    pub stale: u64,
+    /// No stored point yet.
+    pub missing: u64,
+}
+
+/// Per-tag counts.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct TagStats {
+    /// Tag name.
+    pub tag: String,
+    /// Maximum age used for this tag, ms.
+    pub max_age_ms: u64,
+    /// Stored points accepted (a duplicate replacing a point is not a new one).
+    pub points: u64,
+    /// Time of the first accepted point, ms.
+    pub first_time: Option<i64>,
+    /// Time of the last accepted point, ms.
+    pub last_time: Option<i64>,
+    /// Missing values: empty cell, `NaN`, infinite or non-numeric text.
+    pub missing: FaultList,
+    /// Points replaced by a later row at the same time (last write wins).
+    pub duplicates: FaultList,
+    /// Negative values of a non-negative tag, clamped to 0 (raw value kept).
+    pub clamped: FaultList,
+    /// Long format: points of bad quality, rejected.
+    pub bad_quality: FaultList,
+    /// Long format: points of uncertain (or unrecognised) quality, used.
+    pub uncertain_quality: FaultList,
+    /// Intervals between consecutive stored points longer than the maximum age.
+    pub gaps: WindowList,
+    /// Linear (analog) tags: runs of bit-identical consecutive stored points
+    /// longer than the flat-line age, recorded when the run ends (or at the
+    /// end of the log).
+    pub flat_lines: WindowList,
+    /// States returned by `sample` (`ticks.stale` is the stale-tick count).
+    pub ticks: StateTicks,
+}
+
+/// Everything the reader counted.
+#[derive(Clone, Debug, PartialEq)]
+pub struct LogStats {
+    /// The log's path (or the name given to an in-memory reader).
+    pub path: String,
+    /// Layout in use (never `Auto`).
+    pub format: LogFormat,
+    /// Timestamp notation in use (`Auto` until the first timestamp is read).
+    pub time: TimeFormat,
+    /// Flat-line age in use, ms (0: detection off).
+    pub flat_line_ms: u64,
+    /// Lines read, header and blank lines included.
+    pub lines: u64,
+    /// Data rows read (non-blank lines after the header).
+    pub rows: u64,
+    /// Blank lines skipped.
+    pub blank_lines: u64,
+    /// Long format: rows of tags not asked for (not checked further).
+    pub rows_other_tags: u64,
+    /// Rejected: timestamp that cannot be parsed.
+    pub bad_time: FaultList,
+    /// Rejected: timestamp earlier than the previous accepted row.
+    pub backwards: FaultList,
+    /// Rejected: number of fields differs from the header's.
+    pub wrong_fields: FaultList,
+    /// Rejected: unterminated quote, text after a quote, line too long.
+    pub malformed: FaultList,
+    /// Wide format: rows with the same time as the previous row (merged,
+    /// later values win).
+    pub duplicate_rows: FaultList,
+    /// Most stored points buffered at once (look-ahead), all tags.
+    pub peak_buffered_points: usize,
+    /// Per tag, in the order asked for.
+    pub tags: Vec<TagStats>,
+}
+
+impl LogStats {
+    /// Rows rejected whole, all reasons.
+    pub fn rows_rejected(&self) -> u64 {
+        self.bad_time.total + self.backwards.total + self.wrong_fields.total + self.malformed.total
+    }
+
+    /// Stats of one tag by name.
+    pub fn tag(&self, tag: &str) -> Option<&TagStats> {
+        self.tags.iter().find(|t| t.tag == tag)
+    }
+
+    /// Kept gap and flat-line windows of all tags, for plotting: `(start,
+    /// end, label)` in ms since the epoch, label `"data gap"` or `"flat
+    /// line"` (one label per kind, so a plot can give each kind one colour).
+    /// Windows identical in time and kind (a row gap of a wide log is a gap
+    /// of every tag) are given once; sorted by start.
+    pub fn fault_windows(&self) -> Vec<(i64, i64, String)> {
+        let mut out: Vec<(i64, i64, &str)> = Vec::new();
+        for t in &self.tags {
+            out.extend(t.gaps.first.iter().map(|w| (w.start, w.end, "data gap")));
+            out.extend(
+                t.flat_lines
+                    .first
+                    .iter()
+                    .map(|w| (w.start, w.end, "flat line")),
+            );
+        }
+        out.sort_unstable();
+        out.dedup();
+        out.into_iter()
+            .map(|(a, b, label)| (a, b, label.to_string()))
+            .collect()
+    }
+
+    /// A summary for people: one line for the log, then one per fault kind
+    /// that occurred, with its count and first occurrence, e.g.
+    /// `FI-101: 312 missing values (first at line 1045, 2026-03-01T07:12:00Z: empty)`.
+    pub fn describe(&self) -> Vec<String> {
+        let mut out = Vec::new();
+        let format = match self.format {
+            LogFormat::Long => "long",
+            _ => "wide",
+        };
+        let time = match self.time {
+            TimeFormat::Iso8601 => "ISO 8601 timestamps",
+            TimeFormat::Epoch => "epoch-second timestamps",
+            TimeFormat::Auto => "no timestamp read",
+        };
+        out.push(format!(
+            "{}: {} rows read ({format} format, {time}), {} rejected",
+            self.path,
+            self.rows,
+            self.rows_rejected()
+        ));
+        let rows = [
+            (&self.bad_time, "rejected: timestamp cannot be parsed"),
+            (
+                &self.backwards,
+                "rejected: timestamp earlier than the previous row",
+            ),
+            (&self.wrong_fields, "rejected: wrong number of fields"),
+            (&self.malformed, "rejected: malformed line"),
+            (
+                &self.duplicate_rows,
+                "with the same timestamp as the previous row (merged, later values win)",
+            ),
+        ];
+        for (list, what) in rows {
+            if list.total > 0 {
+                out.push(format!(
+                    "{} {} {what}{}",
+                    list.total,
+                    plural(list.total, "row", "rows"),
+                    first_fault(list)
+                ));
+            }
+        }
+        if self.rows_other_tags > 0 {
+            out.push(format!(
+                "{} {} of other tags ignored",
+                self.rows_other_tags,
+                plural(self.rows_other_tags, "row", "rows")
+            ));
+        }
+        for t in &self.tags {
+            let name = &t.tag;
+            if t.points == 0 {
+                out.push(format!("{name}: no stored point in the log"));
+            }
+            let faults = [
+                (&t.missing, "missing value", "missing values"),
+                (
+                    &t.duplicates,
+                    "point replaced by a later duplicate",
+                    "points replaced by later duplicates",
+                ),
+                (
+                    &t.clamped,
+                    "negative value clamped to 0",
+                    "negative values clamped to 0",
+                ),
+                (
+                    &t.bad_quality,
+                    "bad-quality point rejected",
+                    "bad-quality points rejected",
+                ),
+                (
+                    &t.uncertain_quality,
+                    "uncertain-quality point used",
+                    "uncertain-quality points used",
+                ),
+            ];
+            for (list, one, many) in faults {
+                if list.total > 0 {
+                    out.push(format!(
+                        "{name}: {} {}{}",
+                        list.total,
+                        plural(list.total, one, many),
+                        first_fault(list)
+                    ));
+                }
+            }
+            let age = format_duration(t.max_age_ms);
+            let flat = format_duration(self.flat_line_ms);
+            let windows = [
+                (&t.gaps, format!("longer than {age}"), "gap", "gaps"),
+                (
+                    &t.flat_lines,
+                    format!("longer than {flat}"),
+                    "flat line",
+                    "flat lines",
+                ),
+            ];
+            for (list, limit, one, many) in windows {
+                if list.total > 0 {
+                    out.push(format!(
+                        "{name}: {} {} {limit}, {} in all{}",
+                        list.total,
+                        plural(list.total, one, many),
+                        format_duration(list.total_ms),
+                        first_window(list)
+                    ));
+                }
+            }
+            if t.ticks.stale > 0 {
+                out.push(format!(
+                    "{name}: {} stale {} (value older than {age})",
+                    t.ticks.stale,
+                    plural(t.ticks.stale, "sample", "samples")
+                ));
+            }
+        }
+        out
+    }
+}
+
+fn plural<'a>(n: u64, one: &'a str, many: &'a str) -> &'a str {
+    if n == 1 {
+        one
+    } else {
+        many
+    }
+}
+
+fn first_fault(list: &FaultList) -> String {
+    let Some(f) = list.first.first() else {
+        return String::new();
+    };
+    let mut s = format!(" (first at line {}", f.line);
+    if let Some(t) = f.time {
+        s.push_str(", ");
+        s.push_str(&format_ms(t));
+    }
+    if let Some(v) = f.value {
+        s.push_str(&format!(", value {v}"));
+    }
+    if !f.detail.is_empty() {
+        s.push_str(": ");
+        s.push_str(&f.detail);
+    }
+    s.push(')');
+    s
+}
+
+fn first_window(list: &WindowList) -> String {
+    match list.first.first() {
+        Some(w) => format!(
+            " (first {} to {}, lines {}–{})",
+            format_ms(w.start),
+            format_ms(w.end),
+            w.start_line,
+            w.end_line
+        ),
+        None => String::new(),
+    }
+}
+
+impl LogStats {
+    /// As JSON (for the replay summary). Times as RFC 3339 text.
+    pub fn to_json(&self) -> serde_json::Value {
+        use serde_json::json;
+        let fault = |f: &Fault| json!({"line": f.line, "time": f.time.map(format_ms), "value": f.value, "detail": f.detail});
+        let faults = |l: &FaultList| json!({"total": l.total, "first": l.first.iter().map(fault).collect::<Vec<_>>()});
+        let window = |w: &Window| json!({"start": format_ms(w.start), "end": format_ms(w.end), "start_line": w.start_line, "end_line": w.end_line});
+        let windows = |l: &WindowList| json!({"total": l.total, "total_ms": l.total_ms, "first": l.first.iter().map(window).collect::<Vec<_>>()});
+        let tags: Vec<_> = self.tags.iter().map(|t| json!({
+            "tag": t.tag, "max_age_ms": t.max_age_ms, "points": t.points,
+            "first_time": t.first_time.map(format_ms), "last_time": t.last_time.map(format_ms),
+            "missing": faults(&t.missing), "duplicates": faults(&t.duplicates), "clamped": faults(&t.clamped),
+            "bad_quality": faults(&t.bad_quality), "uncertain_quality": faults(&t.uncertain_quality),
+            "gaps": windows(&t.gaps), "flat_lines": windows(&t.flat_lines),
+            "ticks": {"exact": t.ticks.exact, "interpolated": t.ticks.interpolated, "held": t.ticks.held,
+                      "stale": t.ticks.stale, "missing": t.ticks.missing},
+        })).collect();
+        json!({
+            "path": self.path, "format": format!("{:?}", self.format), "time": format!("{:?}", self.time),
+            "flat_line_ms": self.flat_line_ms, "lines": self.lines, "rows": self.rows,
+            "rows_rejected": self.rows_rejected(), "blank_lines": self.blank_lines,
+            "rows_other_tags": self.rows_other_tags, "bad_time": faults(&self.bad_time),
+            "backwards": faults(&self.backwards), "wrong_fields": faults(&self.wrong_fields),
+            "malformed": faults(&self.malformed), "duplicate_rows": faults(&self.duplicate_rows),
+            "peak_buffered_points": self.peak_buffered_points, "tags": tags,
+        })
+    }
+}

@@ -1,0 +1,249 @@
+//! A plant configuration after reading and checking: everything in SI units,
+//! species referred to by index, signals either constant or a log tag with
+//! its affine conversion to SI. Built by [`crate::config`]; consumed by the
+//! replay. Nothing here can be invalid in a way the kernel would refuse,
+//! except what only the kernel checks (it is asked, and its error named).
+
+use std::path::PathBuf;
+
+/// Which floating-point type the kernel runs in.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ScalarKind {
+    /// Single precision, as on the gateway (default).
+    F32,
+    /// Double precision.
+    F64,
+}
+
+/// Where a value comes from.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Signal {
+    /// A constant, already in SI.
+    Constant(f64),
+    /// A tag of the log; SI value = `raw · scale + offset`.
+    Tag {
+        /// Tag (wide: column name; long: the tag column's value).
+        tag: String,
+        /// Multiplier to SI.
+        scale: f64,
+        /// Offset to SI (temperatures).
+        offset: f64,
+        /// Unit as written in the config (for reports).
+        unit: String,
+    },
+}
+
+impl Signal {
+    /// The tag name, if the signal comes from the log.
+    pub fn tag(&self) -> Option<&str> {
+        match self {
+            Signal::Tag { tag, .. } => Some(tag),
+            Signal::Constant(_) => None,
+        }
+    }
+
+    /// Convert a raw log value of this signal to SI (constants ignore `raw`).
+    pub fn to_si(&self, raw: f64) -> f64 {
+        match self {
+            Signal::Constant(v) => *v,
+            Signal::Tag { scale, offset, .. } => raw * scale + offset,
+        }
+    }
+}
+
+/// One species.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Species {
+    /// Name as in the config and the lab file.
+    pub name: String,
+    /// Molar mass, kg/mol, if given.
+    pub molar_mass: Option<f64>,
+}
+
+/// One inlet stream.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Inlet {
+    /// Name for reports.
+    pub name: String,
+    /// Flow, m³/s.
+    pub flow: Signal,
+    /// Feed concentration of each species (index = species), mol/m³.
+    pub feed: Vec<Signal>,
+}
+
+/// How an outlet's flow is known.
+#[derive(Clone, Debug, PartialEq)]
+pub enum OutletKind {
+    /// Metered: flow in m³/s.
+    Measured(Signal),
+    /// Gravity drain through an orifice.
+    Orifice {
+        /// Discharge coefficient.
+        discharge_coefficient: f64,
+        /// Area, m².
+        area: f64,
+        /// Centre height above the vessel bottom, m.
+        elevation: f64,
+    },
+    /// Overflow over a rectangular weir.
+    Weir {
+        /// Discharge coefficient.
+        discharge_coefficient: f64,
+        /// Crest width, m.
+        width: f64,
+        /// Crest height above the vessel bottom, m.
+        crest: f64,
+    },
+}
+
+/// One outlet.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Outlet {
+    /// Name for reports.
+    pub name: String,
+    /// How its flow is known.
+    pub kind: OutletKind,
+}
+
+/// One direction of a rate law, SI.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Kinetics {
+    /// Rate constant at the reference temperature, (mol/m³)^(1−Σorders)/s.
+    pub rate_constant: f64,
+    /// Activation energy, J/mol.
+    pub activation_energy: f64,
+    /// Order per species (index = species).
+    pub orders: Vec<f64>,
+}
+
+/// One reaction, SI.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Reaction {
+    /// Name for reports.
+    pub name: String,
+    /// Stoichiometric coefficient per species (index = species).
+    pub stoichiometry: Vec<f64>,
+    /// Forward rate law.
+    pub forward: Kinetics,
+    /// Reverse rate law, if reversible.
+    pub reverse: Option<Kinetics>,
+    /// Reference temperature, K.
+    pub reference_temperature: f64,
+}
+
+/// Interpolation of a tag between stored points.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Interpolation {
+    /// Linear between stored points (analog signals).
+    Linear,
+    /// Hold the last stored value (discrete signals).
+    Hold,
+}
+
+/// Per-tag replay options.
+#[derive(Clone, Debug, PartialEq)]
+pub struct TagOptions {
+    /// Tag name.
+    pub tag: String,
+    /// Interpolation.
+    pub interpolation: Interpolation,
+    /// Age after which a value with no newer point is stale, ms.
+    pub max_age_ms: u64,
+    /// True for flows (a negative value is clamped to zero and counted).
+    pub non_negative: bool,
+}
+
+/// Log layout.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum LogFormat {
+    /// Detect from the header.
+    Auto,
+    /// One timestamp column, one column per tag.
+    Wide,
+    /// Columns timestamp, tag, value, optional quality.
+    Long,
+}
+
+/// Timestamp notation.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum TimeFormat {
+    /// Detect from the first data row.
+    Auto,
+    /// ISO 8601 / RFC 3339 with offset (`2026-03-01T06:00:00+01:00`, `…Z`).
+    Iso8601,
+    /// Seconds since 1970-01-01T00:00:00Z, decimals allowed.
+    Epoch,
+}
+
+/// Log options.
+#[derive(Clone, Debug, PartialEq)]
+pub struct LogOptions {
+    /// Layout.
+    pub format: LogFormat,
+    /// Timestamp notation.
+    pub time: TimeFormat,
+    /// Wide format: timestamp column name (`None`: the first column).
+    pub time_column: Option<String>,
+    /// Default maximum age, ms.
+    pub max_age_ms: u64,
+}
+
+/// Initial state, SI.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Initial {
+    /// Holdup, m³.
+    pub volume: f64,
+    /// Concentration per species, mol/m³.
+    pub concentrations: Vec<f64>,
+    /// Temperature, K (`None`: first value of the temperature signal).
+    pub temperature: Option<f64>,
+}
+
+/// A checked plant configuration.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Plant {
+    /// The file it came from.
+    pub path: PathBuf,
+    /// Free-text name.
+    pub name: String,
+    /// Tick, ms.
+    pub tick_ms: u32,
+    /// Kernel scalar type.
+    pub scalar: ScalarKind,
+    /// Kernel integrator.
+    pub method: holdup_kernel::Method,
+    /// Minimum observable holdup, m³.
+    pub min_holdup: f64,
+    /// Vessel shape, SI (validated by the kernel's `Geometry::new`).
+    pub shape: holdup_kernel::Shape<f64>,
+    /// Species, in order.
+    pub species: Vec<Species>,
+    /// Inlets.
+    pub inlets: Vec<Inlet>,
+    /// Outlets.
+    pub outlets: Vec<Outlet>,
+    /// Vessel temperature, K.
+    pub temperature: Signal,
+    /// Measured level, m (for comparison only).
+    pub level: Option<Signal>,
+    /// Reactions.
+    pub reactions: Vec<Reaction>,
+    /// Initial state.
+    pub initial: Initial,
+    /// Options of every tag the plant reads (one entry per distinct tag).
+    pub tags: Vec<TagOptions>,
+    /// Log options.
+    pub log: LogOptions,
+}
+
+/// Capacities the host replay is compiled for.
+pub mod limits {
+    /// Most species.
+    pub const SPECIES: usize = 8;
+    /// Most reactions.
+    pub const REACTIONS: usize = 8;
+    /// Most inlets.
+    pub const INLETS: usize = 8;
+    /// Most outlets.
+    pub const OUTLETS: usize = 4;
+}

@@ -327,6 +327,44 @@ fn reap(mut child: std::process::Child, started: Instant) -> io::Result<Measured
     })
 }
 
+/// Run the command made by `make` `runs` times, each to completion: the
+/// fastest run's status and wall time, and the highest peak RSS of all runs.
+fn best_of(
+    runs: u32,
+    what: &str,
+    console: &Path,
+    make: impl Fn() -> Command,
+) -> Result<Measured, String> {
+    let mut best: Option<Measured> = None;
+    for run in 0..runs {
+        let m = measure(make(), console).map_err(|e| format!("cannot start {what}: {e}"))?;
+        if !m.status.success() {
+            let said = fs::read_to_string(console).unwrap_or_default();
+            return Err(format!("{what} failed ({}):\n{said}", m.status));
+        }
+        eprintln!(
+            "{what}: run {}/{runs}: {:.2} s",
+            run + 1,
+            m.wall.as_secs_f64()
+        );
+        best = Some(match best {
+            None => m,
+            Some(b) => {
+                let peak = match (b.peak_rss_mib, m.peak_rss_mib) {
+                    (Some(x), Some(y)) => Some(x.max(y)),
+                    (x, y) => x.or(y),
+                };
+                let fastest = if m.wall < b.wall { m } else { b };
+                Measured {
+                    peak_rss_mib: peak,
+                    ..fastest
+                }
+            }
+        });
+    }
+    best.ok_or_else(|| format!("{what}: no run"))
+}
+
 /// Max relative error of c_A over the rows of `estimates.csv`, with the
 /// number of rows checked.
 fn check_estimates(path: &Path) -> Result<(f64, usize), String> {
@@ -382,8 +420,9 @@ fn run_holdup(root: &Path, case: Case, runs: u32) -> Result<(Row, PathBuf), Stri
         }
     );
     let out = root.join(case.name).join("out");
-    let mut best: Option<Measured> = None;
-    for run in 0..runs {
+    let console = root.join(case.name).join("holdup-console.txt");
+    let what = format!("holdup replay on the {} log", case.name);
+    let best = best_of(runs, &what, &console, || {
         let _ = fs::remove_dir_all(&out);
         let mut cmd = Command::new(HOLDUP);
         cmd.arg("replay")
@@ -394,35 +433,8 @@ fn run_holdup(root: &Path, case: Case, runs: u32) -> Result<(Row, PathBuf), Stri
             .arg("--out")
             .arg(&out)
             .args(["--every", "1 h", "--quiet"]);
-        let console = root.join(case.name).join("holdup-console.txt");
-        let m = measure(cmd, &console).map_err(|e| format!("cannot run {HOLDUP}: {e}"))?;
-        if !m.status.success() {
-            let said = fs::read_to_string(&console).unwrap_or_default();
-            return Err(format!(
-                "holdup replay on the {} log failed ({}):\n{said}",
-                case.name, m.status
-            ));
-        }
-        eprintln!(
-            "{}: run {}/{runs}: {:.2} s",
-            case.name,
-            run + 1,
-            m.wall.as_secs_f64()
-        );
-        let peak = match (&best, m.peak_rss_mib) {
-            (Some(b), Some(p)) => Some(p.max(b.peak_rss_mib.unwrap_or(0.0))),
-            (_, p) => p,
-        };
-        if best.as_ref().is_none_or(|b| m.wall < b.wall) {
-            best = Some(Measured {
-                peak_rss_mib: peak,
-                ..m
-            });
-        } else if let Some(b) = best.as_mut() {
-            b.peak_rss_mib = peak;
-        }
-    }
-    let best = best.ok_or("no run")?;
+        cmd
+    })?;
     let (err, n) = check_estimates(&out.join("estimates.csv"))?;
     let expect = case.rows.div_ceil(EVERY_S as u64) as usize;
     if n < expect {
@@ -447,22 +459,22 @@ fn python() -> String {
     std::env::var("PYTHON").unwrap_or_else(|_| "python3".to_string())
 }
 
-fn run_python(root: &Path, log: &Path, rows: u64) -> Result<(Row, String), String> {
-    let mut cmd = Command::new(python());
-    cmd.arg(PY_SCRIPT)
-        .arg(log)
-        .arg(VOLUME_M3.to_string())
-        .arg(K_PER_S.to_string())
-        .arg("--c0")
-        .arg(C0_MOL_M3.to_string())
-        .arg("--every")
-        .arg(EVERY_S.to_string());
+fn run_python(root: &Path, log: &Path, rows: u64, runs: u32) -> Result<(Row, String), String> {
     let console = root.join("week").join("python-console.txt");
-    let m = measure(cmd, &console).map_err(|e| format!("cannot run {}: {e}", python()))?;
+    let what = format!("{} {PY_SCRIPT}", python());
+    let m = best_of(runs, &what, &console, || {
+        let mut cmd = Command::new(python());
+        cmd.arg(PY_SCRIPT)
+            .arg(log)
+            .arg(VOLUME_M3.to_string())
+            .arg(K_PER_S.to_string())
+            .arg("--c0")
+            .arg(C0_MOL_M3.to_string())
+            .arg("--every")
+            .arg(EVERY_S.to_string());
+        cmd
+    })?;
     let said = fs::read_to_string(&console).unwrap_or_default();
-    if !m.status.success() {
-        return Err(format!("{PY_SCRIPT} failed ({}):\n{said}", m.status));
-    }
     let json: serde_json::Value = said
         .lines()
         .rev()
@@ -565,7 +577,7 @@ fn main() {
                 Some(l) => Ok(l),
                 None => prepare(&root, WEEK).map(|p| p.1).map_err(|e| e.to_string()),
             };
-            match log.and_then(|l| run_python(&root, &l, WEEK.rows)) {
+            match log.and_then(|l| run_python(&root, &l, WEEK.rows, runs)) {
                 Ok((row, note)) => {
                     rows.push(row);
                     notes.push(note);

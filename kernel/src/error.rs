@@ -60,6 +60,18 @@ pub enum Error {
     InitialConcentration(u8),
     /// The initial temperature is not a finite positive number of kelvin.
     InitialTemperature,
+    /// An observer noise level, sigma or gate is NaN, negative (or zero where
+    /// it must be positive), or the bias list does not match the state size.
+    ObserverConfig,
+    /// A lab sample was drawn while all pending-sample slots are in use; it
+    /// is not recorded.
+    LabQueueFull,
+    /// A lab result names a sample that is not pending (never drawn, already
+    /// fused, or dropped after the maximum age).
+    LabSampleNotPending,
+    /// A lab sample cannot be recorded: the vessel is near empty or the
+    /// species does not exist.
+    LabSampleNotObservable,
 }
 
 impl Error {
@@ -94,6 +106,16 @@ impl Error {
             Error::InitialVolume => "initial holdup must be finite, non-negative and within the vessel capacity",
             Error::InitialConcentration(_) => "initial concentration must be finite and non-negative",
             Error::InitialTemperature => "initial temperature must be finite and positive (kelvin)",
+            Error::ObserverConfig => {
+                "observer noise levels and sigmas must be finite and non-negative, level sigma and gate positive, and one bias per extra state"
+            }
+            Error::LabQueueFull => "all pending lab-sample slots are in use; the sample was not recorded",
+            Error::LabSampleNotPending => {
+                "lab result for a sample that is not pending (never drawn, already fused, or older than the maximum age)"
+            }
+            Error::LabSampleNotObservable => {
+                "lab sample cannot be recorded: vessel near empty or unknown species"
+            }
         }
     }
 }

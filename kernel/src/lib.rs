@@ -41,6 +41,7 @@
 //! | [`model`] | raw [`VesselSpec`] → validated [`Model`]; outlets, kinetics |
 //! | [`integrate`] | exact step, MPRK22, reference RK4 and Euler |
 //! | [`vessel`] | the state and its [`Vessel::step`] |
+//! | [`observer`] | extended Kalman filter: level, analyser and delayed lab corrections, meter biases |
 //! | [`status`] | status flags and what a tick reports |
 //! | [`error`] | the one error enum |
 //! | [`reference`](mod@reference) | the reference configuration (benchmarks, firmware, demo) |
@@ -131,6 +132,7 @@ pub mod geometry;
 pub mod integrate;
 mod linalg;
 pub mod model;
+pub mod observer;
 pub mod reference;
 pub mod scalar;
 pub mod status;
@@ -140,6 +142,7 @@ pub mod vessel;
 pub use error::Error;
 pub use geometry::{Bottom, Geometry, Shape};
 pub use model::{Inputs, Kinetics, Method, Model, Outlet, ReactionSpec, VesselSpec};
+pub use observer::{BiasTarget, Observer, ObserverSpec, Update};
 pub use scalar::{Compensated, Scalar};
 pub use status::{MethodUsed, StatusFlags, StepReport};
 pub use vessel::{InitialState, Vessel};

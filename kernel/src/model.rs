@@ -179,6 +179,18 @@ impl<S: Scalar> Order<S> {
             Order::Real(a) => c.powf(a),
         }
     }
+
+    /// Derivative of `c^order` with respect to `c`. For a real order below
+    /// one the slope at `c → 0` is unbounded; it is taken at `c = ε` instead.
+    #[inline]
+    fn slope(self, c: S) -> S {
+        match self {
+            Order::Zero => S::ZERO,
+            Order::One => S::ONE,
+            Order::Two => S::TWO * c,
+            Order::Real(a) => a * c.max(S::EPSILON).powf(a - S::ONE),
+        }
+    }
 }
 
 /// Compiled kinetics of one reaction direction.
@@ -210,6 +222,25 @@ impl<S: Scalar, const N: usize> Rate<S, N> {
             r *= o.apply(ci);
         }
         r
+    }
+
+    /// Rate and its gradient `∂r/∂c_k` (`N²` multiplications).
+    pub(crate) fn rate_and_gradient(&self, k: S, c: &[S; N], grad: &mut [S; N]) -> S {
+        for kk in 0..N {
+            let o = self.orders[kk];
+            if o == Order::Zero {
+                grad[kk] = S::ZERO;
+                continue;
+            }
+            let mut p = k * o.slope(c[kk]);
+            for m in 0..N {
+                if m != kk {
+                    p *= self.orders[m].apply(c[m]);
+                }
+            }
+            grad[kk] = p;
+        }
+        self.rate(k, c)
     }
 }
 
@@ -489,6 +520,103 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
                 Some(rev) => v * rev.rate(kj[1], &c),
                 None => S::ZERO,
             };
+        }
+    }
+
+    /// Total computed outflow (m³/s) at holdup `v` and its slope with
+    /// respect to the holdup (1/s): `dq/dV = (dq/dz)/A(z)`, with
+    /// `dq/dz = q/(2·head)` for an orifice and `1.5·q/head` for a weir.
+    pub(crate) fn computed_outflow_with_slope(&self, v: S) -> (S, S) {
+        if !self.has_computed_outlets {
+            return (S::ZERO, S::ZERO);
+        }
+        let z = self.geometry.level_at(v);
+        let area = self.geometry.area_at(z);
+        let two_g = S::of(2.0 * STANDARD_GRAVITY);
+        let (mut q, mut dqdz) = (S::ZERO, S::ZERO);
+        for o in self.outlets.iter() {
+            match *o {
+                Outlet::Measured => {}
+                Outlet::Orifice {
+                    discharge_coefficient,
+                    area: a,
+                    elevation,
+                } => {
+                    let head = z - elevation;
+                    if head > S::ZERO {
+                        let qo = discharge_coefficient * a * (two_g * head).sqrt();
+                        q += qo;
+                        dqdz += qo / (S::TWO * head);
+                    }
+                }
+                Outlet::Weir {
+                    discharge_coefficient,
+                    width,
+                    crest_level,
+                } => {
+                    let head = z - crest_level;
+                    if head > S::ZERO {
+                        let qo = S::of(2.0 / 3.0)
+                            * discharge_coefficient
+                            * width
+                            * two_g.sqrt()
+                            * head
+                            * head.sqrt();
+                        q += qo;
+                        dqdz += S::of(1.5) * qo / head;
+                    }
+                }
+            }
+        }
+        let slope = if area > S::ZERO { dqdz / area } else { S::ZERO };
+        (q, slope)
+    }
+
+    /// Jacobian of the reaction source `g_i = V·Σ_j ν_ij·r_j(n/V)` (mol/s)
+    /// with respect to the amounts (`dg_dn`, 1/s) and the holdup (`dg_dv`,
+    /// mol/(m³·s)), at rate constants `k`.
+    pub(crate) fn reaction_jacobian(
+        &self,
+        k: &[[S; 2]; R],
+        n: &[S; N],
+        v: S,
+        dg_dn: &mut [[S; N]; N],
+        dg_dv: &mut [S; N],
+    ) {
+        *dg_dn = [[S::ZERO; N]; N];
+        *dg_dv = [S::ZERO; N];
+        if !(v > S::ZERO) {
+            return;
+        }
+        let mut c = [S::ZERO; N];
+        for (ci, &ni) in c.iter_mut().zip(n.iter()) {
+            *ci = ni / v;
+        }
+        let mut grad = [S::ZERO; N];
+        for (r, kj) in self.reactions.iter().zip(k.iter()) {
+            for dir in 0..2 {
+                let (rate, sign) = match (dir, &r.reverse) {
+                    (0, _) => (&r.forward, S::ONE),
+                    (_, Some(rev)) => (rev, -S::ONE),
+                    (_, None) => continue,
+                };
+                let rj = rate.rate_and_gradient(kj[dir], &c, &mut grad);
+                // Σ_k ∂r/∂c_k · c_k (the change of r when V changes at fixed n).
+                let mut dc = S::ZERO;
+                for (g, &ck) in grad.iter().zip(c.iter()) {
+                    dc += *g * ck;
+                }
+                for i in 0..N {
+                    let nu = sign * r.nu[i];
+                    if nu == S::ZERO {
+                        continue;
+                    }
+                    for kk in 0..N {
+                        dg_dn[i][kk] += nu * grad[kk];
+                    }
+                    dg_dv[i] += nu * (rj - dc);
+                }
+            }
         }
     }
 

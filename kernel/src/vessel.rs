@@ -163,6 +163,29 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
         out
     }
 
+    /// Replace the balance state (used by the observer after a measurement
+    /// update). The holdup is kept within `[0, capacity]` and amounts at or
+    /// above zero; returns `true` if anything had to be clamped. Non-finite
+    /// values leave the state unchanged and return `true`.
+    pub fn set_state(&mut self, volume: S, amounts: &[S; N]) -> bool {
+        if !volume.is_finite() || amounts.iter().any(|a| !a.is_finite()) {
+            return true;
+        }
+        let v = volume.clamp_to(S::ZERO, self.model.capacity);
+        let mut clamped = v != volume;
+        self.volume.set(v);
+        for (a, &x) in self.amounts.iter_mut().zip(amounts.iter()) {
+            if x < S::ZERO {
+                clamped = true;
+            }
+            a.set(x.max(S::ZERO));
+        }
+        if v > self.observable_floor() {
+            self.held = self.concentrations();
+        }
+        clamped
+    }
+
     /// The holdup at or below which concentrations are not formed: the
     /// configured minimum, but never below `ε·capacity`.
     fn observable_floor(&self) -> S {

@@ -1,0 +1,214 @@
+//! The firmware's report: semihosting text on the emulator, `defmt` frames
+//! with a `defmt-*` feature.
+//!
+//! The text path formats numbers itself (no `core::fmt`, whose machinery
+//! brings panic paths into the binary): integers exactly, floats to six
+//! significant digits for display — the checks compare the binary values.
+
+/// Where the report goes.
+pub struct Report {
+    #[cfg(not(feature = "defmt"))]
+    out: Option<cortex_m_semihosting::hio::HostStream>,
+}
+
+/// One line of text being assembled (text path).
+#[cfg(not(feature = "defmt"))]
+struct Line {
+    buf: [u8; 160],
+    len: usize,
+}
+
+#[cfg(not(feature = "defmt"))]
+impl Line {
+    fn new() -> Self {
+        Self {
+            buf: [0; 160],
+            len: 0,
+        }
+    }
+
+    fn byte(&mut self, b: u8) -> &mut Self {
+        if let Some(slot) = self.buf.get_mut(self.len) {
+            *slot = b;
+            self.len += 1;
+        }
+        self
+    }
+
+    fn str(&mut self, s: &str) -> &mut Self {
+        for b in s.bytes() {
+            self.byte(b);
+        }
+        self
+    }
+
+    fn u64(&mut self, mut x: u64) -> &mut Self {
+        let mut digits = [0u8; 20];
+        let mut n = 0;
+        loop {
+            if let Some(d) = digits.get_mut(n) {
+                *d = b'0' + (x % 10) as u8;
+            }
+            n += 1;
+            x /= 10;
+            if x == 0 || n >= digits.len() {
+                break;
+            }
+        }
+        for d in digits.iter().take(n).rev() {
+            self.byte(*d);
+        }
+        self
+    }
+
+    fn u32(&mut self, x: u32) -> &mut Self {
+        self.u64(u64::from(x))
+    }
+
+    /// `x` to six significant digits, `d.ddddde±XX`.
+    fn f32(&mut self, x: f32) -> &mut Self {
+        if x.is_nan() {
+            return self.str("NaN");
+        }
+        if x < 0.0 {
+            self.byte(b'-');
+        }
+        let mut m = if x < 0.0 { -x } else { x };
+        if m == f32::INFINITY {
+            return self.str("inf");
+        }
+        if m == 0.0 {
+            return self.str("0");
+        }
+        // Scale into [1, 10) (bounded: |exponent| ≤ 45 for f32).
+        let mut e: i32 = 0;
+        while m >= 10.0 && e < 60 {
+            m /= 10.0;
+            e += 1;
+        }
+        while m < 1.0 && e > -60 {
+            m *= 10.0;
+            e -= 1;
+        }
+        // Six significant digits, rounded; carry into the exponent.
+        let mut digits = (m * 100_000.0 + 0.5) as u32;
+        if digits >= 1_000_000 {
+            digits /= 10;
+            e += 1;
+        }
+        self.u32(digits / 100_000).byte(b'.');
+        let frac = digits % 100_000;
+        let mut scale = 10_000;
+        while scale > 0 {
+            self.byte(b'0' + ((frac / scale) % 10) as u8);
+            scale /= 10;
+        }
+        self.byte(b'e');
+        if e < 0 {
+            self.byte(b'-');
+        } else {
+            self.byte(b'+');
+        }
+        self.u32(e.unsigned_abs())
+    }
+}
+
+impl Report {
+    /// Open the report channel (the semihosting console on the text path).
+    pub fn open() -> Self {
+        Self {
+            #[cfg(not(feature = "defmt"))]
+            out: cortex_m_semihosting::hio::hstdout().ok(),
+        }
+    }
+
+    #[cfg(not(feature = "defmt"))]
+    fn emit(&mut self, line: &mut Line) {
+        line.byte(b'\n');
+        if let (Some(out), Some(bytes)) = (self.out.as_mut(), line.buf.get(..line.len)) {
+            let _ = out.write_all(bytes);
+        }
+    }
+
+    /// A plain line of text.
+    pub fn line(&mut self, s: &str) {
+        #[cfg(not(feature = "defmt"))]
+        self.emit(Line::new().str(s));
+        #[cfg(feature = "defmt")]
+        defmt::println!("{=str}", s);
+    }
+
+    /// One check's outcome.
+    pub fn check(&mut self, name: &str, points: u32, max_rel: f32, tol: f32, pass: bool) {
+        let verdict = if pass { "pass" } else { "FAIL" };
+        #[cfg(not(feature = "defmt"))]
+        self.emit(
+            Line::new()
+                .str("check ")
+                .str(name)
+                .str(": ")
+                .u32(points)
+                .str(" checkpoints, max rel error ")
+                .f32(max_rel)
+                .str(" (tolerance ")
+                .f32(tol)
+                .str(") ")
+                .str(verdict),
+        );
+        #[cfg(feature = "defmt")]
+        defmt::println!(
+            "check {=str}: {=u32} checkpoints, max rel error {=f32} (tolerance {=f32}) {=str}",
+            name,
+            points,
+            max_rel,
+            tol,
+            verdict
+        );
+    }
+
+    /// A named value with a unit.
+    pub fn value(&mut self, name: &str, x: f32, unit: &str) {
+        #[cfg(not(feature = "defmt"))]
+        self.emit(Line::new().str(name).str(": ").f32(x).str(" ").str(unit));
+        #[cfg(feature = "defmt")]
+        defmt::println!("{=str}: {=f32} {=str}", name, x, unit);
+    }
+
+    /// A named count with a unit.
+    pub fn count(&mut self, name: &str, x: u32, unit: &str) {
+        #[cfg(not(feature = "defmt"))]
+        self.emit(Line::new().str(name).str(": ").u32(x).str(" ").str(unit));
+        #[cfg(feature = "defmt")]
+        defmt::println!("{=str}: {=u32} {=str}", name, x, unit);
+    }
+
+    /// Cost of a tick over a run: min, mean, max.
+    pub fn cost(&mut self, name: &str, unit: &str, ticks: u32, min: u32, mean: f32, max: u32) {
+        #[cfg(not(feature = "defmt"))]
+        self.emit(
+            Line::new()
+                .str("cost ")
+                .str(name)
+                .str(": ")
+                .str(unit)
+                .str(" per tick over ")
+                .u32(ticks)
+                .str(" ticks: min ")
+                .u32(min)
+                .str(" mean ")
+                .f32(mean)
+                .str(" max ")
+                .u32(max),
+        );
+        #[cfg(feature = "defmt")]
+        defmt::println!(
+            "cost {=str}: {=str} per tick over {=u32} ticks: min {=u32} mean {=f32} max {=u32}",
+            name,
+            unit,
+            ticks,
+            min,
+            mean,
+            max
+        );
+    }
+}

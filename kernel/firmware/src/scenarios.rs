@@ -1,0 +1,95 @@
+//! The two compiled-in scenarios, shared by the firmware (in `f32`) and by
+//! `build.rs` (which runs them on the host to produce the expected values).
+//!
+//! * **Analytic** — a constant-volume stirred tank, feed concentration
+//!   stepped from the initial 10 to 100 mol/m³, first-order consumption
+//!   `k = 2e-4 1/s`, one species, exact integrator. Closed form
+//!   `c(t) = c_ss + (c₀ − c_ss)·e^{−(q/V + k)t}`, `c_ss = c_f/(1 + kV/q)`
+//!   (the component balance `V dc/dt = q(c_f − c) − kVc` solved with an
+//!   integrating factor).
+//! * **Reference** — the kernel's reference configuration
+//!   ([`holdup_kernel::reference`]: 1 vessel, 3 species, 2 reactions, the
+//!   MPRK22 split path) over its 8 h shift at a 1 s tick.
+
+use holdup_kernel::{
+    Bottom, Error, Geometry, Inputs, Kinetics, Method, Model, Outlet, ReactionSpec, Scalar, Shape,
+    Vessel, VesselSpec,
+};
+
+/// Analytic scenario: holdup, m³.
+pub const EXACT_VOLUME: f64 = 10.0;
+/// Analytic scenario: through-flow, m³/s (τ = 10⁴ s).
+pub const EXACT_FLOW: f64 = 1e-3;
+/// Analytic scenario: feed concentration after the step, mol/m³.
+pub const EXACT_FEED: f64 = 100.0;
+/// Analytic scenario: first-order rate constant, 1/s.
+pub const EXACT_K: f64 = 2e-4;
+/// Analytic scenario: initial concentration, mol/m³.
+pub const EXACT_C0: f64 = 10.0;
+/// Analytic scenario: temperature, K (no activation energy: irrelevant).
+pub const EXACT_TEMPERATURE: f64 = 298.15;
+/// Analytic scenario: ticks (1 s each): 3 residence times of the
+/// consumption-accelerated approach, 1/(q/V + k) = 3,333 s.
+pub const EXACT_TICKS: u32 = 30_000;
+/// Analytic scenario: a checkpoint every this many ticks.
+pub const EXACT_EVERY: u32 = 1_000;
+/// Analytic scenario: number of checkpoints.
+pub const EXACT_POINTS: usize = (EXACT_TICKS / EXACT_EVERY) as usize;
+
+/// Reference scenario: a checkpoint every this many ticks (10 min).
+pub const REF_EVERY: u32 = 600;
+/// Reference scenario: ticks in the shift.
+pub const REF_TICKS: u32 =
+    (holdup_kernel::reference::SHIFT_MS / holdup_kernel::reference::TICK_MS as u64) as u32;
+/// Reference scenario: number of checkpoints.
+pub const REF_POINTS: usize = (REF_TICKS / REF_EVERY) as usize;
+
+/// The analytic scenario's vessel type: 1 species, 1 reaction, 1 outlet.
+pub type ExactVessel<S> = Vessel<S, 1, 1, 1>;
+
+/// The analytic scenario's vessel at `t = 0`.
+pub fn exact_vessel<S: Scalar>() -> Result<ExactVessel<S>, Error> {
+    let geometry = Geometry::new(Shape::VerticalCylinder {
+        diameter: S::of(2.0),
+        height: S::of(5.0),
+        bottom: Bottom::Flat,
+    })?;
+    let mut spec = VesselSpec {
+        geometry,
+        outlets: Default::default(),
+        reactions: Default::default(),
+        min_holdup: S::of(0.01),
+        tick_ms: 1000,
+        method: Method::Exact,
+    };
+    // Capacity 1 each: these pushes cannot be refused.
+    let _ = spec.outlets.push(Outlet::Measured);
+    let _ = spec.reactions.push(ReactionSpec {
+            stoichiometry: [-S::ONE],
+            forward: Kinetics {
+                rate_constant: S::of(EXACT_K),
+                activation_energy: S::ZERO,
+                orders: [S::ONE],
+            },
+            reverse: None,
+        reference_temperature: S::of(EXACT_TEMPERATURE),
+    });
+    Vessel::new(
+        Model::new(spec)?,
+        &holdup_kernel::InitialState {
+            volume: S::of(EXACT_VOLUME),
+            concentrations: [S::of(EXACT_C0)],
+            temperature: S::of(EXACT_TEMPERATURE),
+        },
+    )
+}
+
+/// The analytic scenario's inputs (held for the whole run).
+pub fn exact_inputs<S: Scalar>() -> Inputs<S, 1, 1, 1> {
+    Inputs {
+        inlet_flows: [S::of(EXACT_FLOW)],
+        feed: [[S::of(EXACT_FEED)]],
+        outlet_flows: [S::of(EXACT_FLOW)],
+        temperature: S::of(EXACT_TEMPERATURE),
+    }
+}

@@ -1,0 +1,739 @@
+//! The observer: an extended Kalman filter that corrects the balances with
+//! what the plant does measure.
+//!
+//! State `x = [V, n_1 … n_N, β_1 … β_B]`: holdup (m³), component amounts
+//! (mol), and the relative bias of up to four flow meters (a meter with bias
+//! `β` reads `(1 + β)` times the true flow, so the balance uses
+//! `q = q_read·(1 − β)`, to first order). `D = 1 + N + B` is a const
+//! generic; the compiler refuses `D ≤ N`.
+//!
+//! * **Prediction.** The mean is the kernel's own tick ([`Vessel::step`])
+//!   with the bias-corrected flows. The covariance is propagated with the
+//!   Jacobian `F` of the balance at the tick's start, discretised by the
+//!   Cayley (Padé (1,1)) transform `Φ = (I − hF/2)⁻¹(I + hF/2)`: second
+//!   order like the integrator, and contracting wherever the balance is
+//!   stable, however stiff (`k·h` of 1e4 leaves `P` bounded, where
+//!   `I + hF` would explode). `P ← Φ P Φᵀ + Q h` with diagonal spectral
+//!   densities from the configuration; each bias is a random walk.
+//! * **Measurements.** Level `z = level(V)`, `H = [1/A(z), 0 …]`; an online
+//!   analyser `z = n_i/V`; lab results. Each is a scalar update in Joseph
+//!   form, `P ← (I − KH) P (I − KH)ᵀ + K r Kᵀ`, which keeps `P` symmetric
+//!   positive definite in `f32` where the short form does not. An
+//!   innovation gate rejects a value whose normalised innovation squared
+//!   `ν²/S` exceeds the configured chi-square quantile (1 degree of
+//!   freedom); each rejection is counted.
+//! * **Delayed lab results** (Larsen, Andersen, Ravn & Poulsen, "Incorporation
+//!   of time delayed measurements in a discrete-time Kalman filter", IEEE
+//!   CDC 1998). The variance of a lab analysis is known when the sample is
+//!   drawn, and a Kalman filter's covariance does not depend on measured
+//!   values, so at the draw ([`Observer::lab_drawn`]) the covariance is
+//!   updated at once as if the result were in, and the filter keeps the
+//!   predicted measurement `h(x̂_s)`, `P_s Hᵀ`, `S = H P_s Hᵀ + r` and starts
+//!   the product `M = Π (I − K_i H_i) Φ_i` of what happens to the state
+//!   afterwards. When the result arrives ([`Observer::lab_result`]) only the
+//!   state moves: `x̂ += M P_s Hᵀ ν / S`. In the linear case this equals a
+//!   filter re-run from the sample time with the value known there (tested).
+//!   No history is stored; memory is `L` fixed slots. A result that is
+//!   rejected by the gate, or a sample whose result never comes within the
+//!   maximum age, gives the anticipated information back
+//!   (`P += M P_s Hᵀ H P_s Mᵀ / S`). A result whose slot is gone is an
+//!   error, never ignored. Between draw and result the reported σ already
+//!   counts the pending analysis. All of this is exact for samples whose
+//!   draw-to-result windows do not overlap (the usual lab rhythm: a result
+//!   before the next draw); overlapping samples are fused with the gains
+//!   each draw anticipated, an approximation that keeps `P` positive
+//!   definite but may leave it somewhat optimistic.
+//!
+//! Bounded work per tick: one Jacobian (`N²·R`), one `D × D` solve with
+//! `D` right-hand sides, two `D × D` products, and one more per pending lab
+//! sample; each measurement update is `O(D²)` plus `O(D²)` per pending
+//! sample. No heap, no recursion, no panic.
+
+use heapless::Vec;
+
+use crate::linalg::{is_positive_definite, mat_mul, solve_matrix};
+use crate::model::Inputs;
+use crate::units::{seconds, Millis};
+use crate::vessel::Vessel;
+use crate::{Error, Scalar, StepReport};
+
+/// Most flow meters whose bias is estimated.
+pub const MAX_BIASES: usize = 4;
+
+/// A flow meter whose relative bias is part of the state.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum BiasTarget {
+    /// Inlet meter, by index into [`Inputs::inlet_flows`].
+    Inlet(u8),
+    /// Outlet meter, by index into [`Inputs::outlet_flows`] (a measured outlet).
+    Outlet(u8),
+}
+
+/// Raw observer configuration (SI units).
+#[derive(Clone, Debug, PartialEq)]
+pub struct ObserverSpec<S, const N: usize> {
+    /// Standard deviation of the level transmitter, m.
+    pub level_sigma: S,
+    /// Process noise density of the holdup, m⁶/s (variance added per second).
+    pub volume_noise: S,
+    /// Process noise density of each amount, mol²/s.
+    pub amount_noise: [S; N],
+    /// Random-walk density of each meter bias, 1/s (relative² per second).
+    pub bias_noise: S,
+    /// Initial standard deviation of the holdup, m³.
+    pub initial_volume_sigma: S,
+    /// Initial standard deviation of each amount, mol.
+    pub initial_amount_sigma: [S; N],
+    /// Initial standard deviation of each bias (relative).
+    pub initial_bias_sigma: S,
+    /// Innovation gate: chi-square quantile for 1 degree of freedom (for
+    /// example 9.0 ≈ 99.73 %, 6.63 ≈ 99 %).
+    pub gate: S,
+    /// A drawn lab sample whose result has not come within this age is
+    /// dropped (and counted), ms.
+    pub lab_max_age_ms: Millis,
+    /// Meters whose bias is estimated; its length must be `D − 1 − N`.
+    pub biases: Vec<BiasTarget, MAX_BIASES>,
+}
+
+/// What a measurement update did.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub enum Update<S> {
+    /// Fused; the normalised innovation squared.
+    Accepted {
+        /// `ν²/S`.
+        nis: S,
+    },
+    /// Rejected by the innovation gate.
+    Rejected {
+        /// `ν²/S`.
+        nis: S,
+    },
+    /// Not used: non-finite value, non-positive variance, or the vessel is
+    /// near empty (concentrations not observable).
+    Skipped,
+}
+
+/// Counters since start (for reports and diagnostics).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct ObserverCounters {
+    /// Level values fused.
+    pub level_accepted: u32,
+    /// Level values rejected by the gate.
+    pub level_rejected: u32,
+    /// Analyser or lab values fused.
+    pub composition_accepted: u32,
+    /// Analyser or lab values rejected by the gate.
+    pub composition_rejected: u32,
+    /// Measurements skipped (non-finite, near empty).
+    pub skipped: u32,
+    /// Drawn lab samples dropped because no result came within the maximum age.
+    pub lab_expired: u32,
+    /// Covariance updates not applied because rounding would have left `P`
+    /// not positive definite (the previous, larger `P` was kept).
+    pub covariance_guarded: u32,
+    /// Ticks where the covariance transition fell back to `I + hF`.
+    pub transition_fallbacks: u32,
+}
+
+/// A lab sample waiting for its result.
+#[derive(Clone, Debug)]
+struct Pending<S, const D: usize> {
+    id: u32,
+    drawn_ms: Millis,
+    predicted: S,
+    /// `P_s Hᵀ` (prior at the draw).
+    ph: [S; D],
+    /// Innovation variance `H P_s Hᵀ + r`.
+    s: S,
+    m: [[S; D]; D],
+}
+
+/// The extended Kalman filter around a [`Vessel`]. `D = 1 + N + B` states,
+/// `L` pending lab samples.
+#[derive(Clone, Debug)]
+pub struct Observer<
+    S,
+    const N: usize,
+    const R: usize,
+    const O: usize,
+    const D: usize,
+    const L: usize,
+> {
+    vessel: Vessel<S, N, R, O>,
+    spec: ObserverSpec<S, N>,
+    bias: [S; D],
+    p: [[S; D]; D],
+    pending: Vec<Pending<S, D>, L>,
+    counters: ObserverCounters,
+}
+
+fn clean<S: Scalar>(x: S) -> S {
+    if x.is_finite() && x > S::ZERO {
+        x
+    } else {
+        S::ZERO
+    }
+}
+
+fn symmetrize<S: Scalar, const D: usize>(p: &mut [[S; D]; D]) {
+    for i in 0..D {
+        for j in i + 1..D {
+            let m = S::HALF * (p[i][j] + p[j][i]);
+            p[i][j] = m;
+            p[j][i] = m;
+        }
+    }
+}
+
+fn identity<S: Scalar, const D: usize>() -> [[S; D]; D] {
+    let mut m = [[S::ZERO; D]; D];
+    for (i, row) in m.iter_mut().enumerate() {
+        row[i] = S::ONE;
+    }
+    m
+}
+
+fn transpose<S: Scalar, const D: usize>(a: &[[S; D]; D]) -> [[S; D]; D] {
+    let mut t = [[S::ZERO; D]; D];
+    for i in 0..D {
+        for j in 0..D {
+            t[j][i] = a[i][j];
+        }
+    }
+    t
+}
+
+fn mat_vec<S: Scalar, const D: usize>(a: &[[S; D]; D], v: &[S; D]) -> [S; D] {
+    let mut out = [S::ZERO; D];
+    for (o, row) in out.iter_mut().zip(a.iter()) {
+        for (x, y) in row.iter().zip(v.iter()) {
+            *o += *x * *y;
+        }
+    }
+    out
+}
+
+impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, const L: usize>
+    Observer<S, N, R, O, D, L>
+{
+    const SIZES_OK: () = assert!(D > N && D <= N + 1 + MAX_BIASES, "D must be 1 + N + biases");
+
+    /// Wrap `vessel` (its current state is the initial mean).
+    ///
+    /// Errors: [`Error::ObserverConfig`] for a non-finite or negative noise
+    /// level or sigma, a non-positive gate or level sigma, a bias count that
+    /// is not `D − 1 − N`, or a bias on a meter that does not exist (an
+    /// inlet index ≥ the inputs' inlet count is caught at the first tick and
+    /// ignored).
+    pub fn new(vessel: Vessel<S, N, R, O>, spec: ObserverSpec<S, N>) -> Result<Self, Error> {
+        let () = Self::SIZES_OK;
+        let nonneg = |x: S| x.is_finite() && x >= S::ZERO;
+        let ok = spec.level_sigma.is_finite()
+            && spec.level_sigma > S::ZERO
+            && nonneg(spec.volume_noise)
+            && spec.amount_noise.iter().all(|&x| nonneg(x))
+            && nonneg(spec.bias_noise)
+            && nonneg(spec.initial_volume_sigma)
+            && spec.initial_amount_sigma.iter().all(|&x| nonneg(x))
+            && nonneg(spec.initial_bias_sigma)
+            && spec.gate.is_finite()
+            && spec.gate > S::ZERO
+            && spec.biases.len() == D - 1 - N
+            && spec.biases.iter().all(|b| match *b {
+                BiasTarget::Inlet(_) => true,
+                BiasTarget::Outlet(k) => usize::from(k) < O,
+            });
+        if !ok {
+            return Err(Error::ObserverConfig);
+        }
+        let mut p = [[S::ZERO; D]; D];
+        // A zero initial sigma still needs a positive-definite P: floor it at
+        // ε relative to the state's scale.
+        let floor = |sigma: S, scale: S| {
+            let f = S::EPSILON * scale.abs().max(S::ONE);
+            let s = sigma.max(f);
+            s * s
+        };
+        p[0][0] = floor(spec.initial_volume_sigma, vessel.volume());
+        let amounts = vessel.amounts();
+        for i in 0..N {
+            p[1 + i][1 + i] = floor(spec.initial_amount_sigma[i], amounts[i]);
+        }
+        for j in 1 + N..D {
+            p[j][j] = floor(spec.initial_bias_sigma, S::ONE);
+        }
+        Ok(Self {
+            vessel,
+            spec,
+            bias: [S::ZERO; D],
+            p,
+            pending: Vec::new(),
+            counters: ObserverCounters::default(),
+        })
+    }
+
+    /// The vessel (model and current mean).
+    pub fn vessel(&self) -> &Vessel<S, N, R, O> {
+        &self.vessel
+    }
+
+    /// Counters since start.
+    pub fn counters(&self) -> ObserverCounters {
+        self.counters
+    }
+
+    /// The covariance of `[V, n, β]`.
+    pub fn covariance(&self) -> &[[S; D]; D] {
+        &self.p
+    }
+
+    /// Holdup estimate and its 1σ, m³.
+    pub fn volume(&self) -> (S, S) {
+        (self.vessel.volume(), self.p[0][0].max(S::ZERO).sqrt())
+    }
+
+    /// Concentration estimates and their 1σ, mol/m³ (first-order propagation
+    /// of the covariance of `n_i` and `V` through `c = n/V`). Near empty,
+    /// the held concentrations with a σ of the same size.
+    pub fn concentrations(&self) -> ([S; N], [S; N]) {
+        let c = self.vessel.concentrations();
+        let mut sd = [S::ZERO; N];
+        let v = self.vessel.volume();
+        if self.vessel.is_near_empty() || !(v > S::ZERO) {
+            for (s, ci) in sd.iter_mut().zip(c.iter()) {
+                *s = ci.abs();
+            }
+            return (c, sd);
+        }
+        let n = self.vessel.amounts();
+        for i in 0..N {
+            let a = S::ONE / v;
+            let b = -n[i] / (v * v);
+            let var = a * a * self.p[1 + i][1 + i]
+                + S::TWO * a * b * self.p[1 + i][0]
+                + b * b * self.p[0][0];
+            sd[i] = var.max(S::ZERO).sqrt();
+        }
+        (c, sd)
+    }
+
+    /// Estimated relative bias of each configured meter and its 1σ.
+    pub fn biases(&self) -> ([S; MAX_BIASES], [S; MAX_BIASES]) {
+        let mut b = [S::ZERO; MAX_BIASES];
+        let mut sd = [S::ZERO; MAX_BIASES];
+        for j in 0..D - 1 - N {
+            if j < MAX_BIASES {
+                b[j] = self.bias[j];
+                sd[j] = self.p[1 + N + j][1 + N + j].max(S::ZERO).sqrt();
+            }
+        }
+        (b, sd)
+    }
+
+    /// Number of lab samples waiting for their result.
+    pub fn pending_lab_samples(&self) -> usize {
+        self.pending.len()
+    }
+
+    /// The inputs with each biased meter corrected: `q·(1 − β)`.
+    fn corrected<const I: usize>(&self, u: &Inputs<S, N, I, O>) -> Inputs<S, N, I, O> {
+        let mut c = *u;
+        for (j, t) in self.spec.biases.iter().enumerate() {
+            let beta = self.bias.get(j).copied().unwrap_or(S::ZERO);
+            match *t {
+                BiasTarget::Inlet(k) => {
+                    if let Some(q) = c.inlet_flows.get_mut(usize::from(k)) {
+                        *q = clean(*q) * (S::ONE - beta);
+                    }
+                }
+                BiasTarget::Outlet(k) => {
+                    if let Some(q) = c.outlet_flows.get_mut(usize::from(k)) {
+                        *q = clean(*q) * (S::ONE - beta);
+                    }
+                }
+            }
+        }
+        c
+    }
+
+    /// Jacobian of the balance at the current mean with inputs `u` (already
+    /// corrected) and raw meter readings `raw` (for the bias columns).
+    fn jacobian<const I: usize>(
+        &self,
+        u: &Inputs<S, N, I, O>,
+        raw: &Inputs<S, N, I, O>,
+    ) -> [[S; D]; D] {
+        let mut f = [[S::ZERO; D]; D];
+        let model = self.vessel.model();
+        let v = self.vessel.volume();
+        let n = self.vessel.amounts();
+        let (q_c, dq_c) = model.computed_outflow_with_slope(v);
+        f[0][0] = -dq_c;
+        let mut q_out = q_c;
+        for (o, &q) in model.outlets.iter().zip(u.outlet_flows.iter()) {
+            if *o == crate::model::Outlet::Measured {
+                q_out += clean(q);
+            }
+        }
+        let observable = !self.vessel.is_near_empty() && v > S::ZERO;
+        if observable {
+            let mut k = [[S::ZERO; 2]; R];
+            model.rate_constants(self.vessel.temperature(), &mut k);
+            let mut dg_dn = [[S::ZERO; N]; N];
+            let mut dg_dv = [S::ZERO; N];
+            model.reaction_jacobian(&k, &n, v, &mut dg_dn, &mut dg_dv);
+            for i in 0..N {
+                let c = n[i] / v;
+                f[1 + i][0] = q_out * c / v - dq_c * c + dg_dv[i];
+                for kk in 0..N {
+                    f[1 + i][1 + kk] = dg_dn[i][kk];
+                }
+                f[1 + i][1 + i] -= q_out / v;
+            }
+        }
+        for (j, t) in self.spec.biases.iter().enumerate() {
+            let col = 1 + N + j;
+            if col >= D {
+                break;
+            }
+            match *t {
+                BiasTarget::Inlet(k) => {
+                    let k = usize::from(k);
+                    let q = raw
+                        .inlet_flows
+                        .get(k)
+                        .copied()
+                        .map(clean)
+                        .unwrap_or(S::ZERO);
+                    f[0][col] = -q;
+                    if let Some(feed) = raw.feed.get(k) {
+                        for i in 0..N {
+                            f[1 + i][col] = -q * clean(feed[i]);
+                        }
+                    }
+                }
+                BiasTarget::Outlet(k) => {
+                    let q = raw
+                        .outlet_flows
+                        .get(usize::from(k))
+                        .copied()
+                        .map(clean)
+                        .unwrap_or(S::ZERO);
+                    f[0][col] = q;
+                    if observable {
+                        for i in 0..N {
+                            f[1 + i][col] = q * n[i] / v;
+                        }
+                    }
+                }
+            }
+        }
+        f
+    }
+
+    /// Predict over one tick with the measured inputs `u`: the kernel's step
+    /// with bias-corrected flows for the mean, the Cayley transition for the
+    /// covariance. Returns the kernel's report.
+    pub fn tick<const I: usize>(&mut self, u: &Inputs<S, N, I, O>) -> StepReport<S> {
+        let h: S = seconds(self.vessel.model().tick_ms());
+        let uc = self.corrected(u);
+        let f = self.jacobian(&uc, u);
+        // Φ = (I − hF/2)⁻¹ (I + hF/2)
+        let mut a = identity::<S, D>();
+        let mut phi = identity::<S, D>();
+        for i in 0..D {
+            for j in 0..D {
+                let x = S::HALF * h * f[i][j];
+                a[i][j] -= x;
+                phi[i][j] += x;
+            }
+        }
+        if solve_matrix(&mut a, &mut phi).is_err() {
+            self.counters.transition_fallbacks =
+                self.counters.transition_fallbacks.saturating_add(1);
+            phi = identity();
+            for i in 0..D {
+                for j in 0..D {
+                    phi[i][j] += h * f[i][j];
+                }
+            }
+        }
+        let mut p = mat_mul(&mat_mul(&phi, &self.p), &transpose(&phi));
+        p[0][0] += self.spec.volume_noise * h;
+        for i in 0..N {
+            p[1 + i][1 + i] += self.spec.amount_noise[i] * h;
+        }
+        for j in 1 + N..D {
+            p[j][j] += self.spec.bias_noise * h;
+        }
+        symmetrize(&mut p);
+        if p.iter().flatten().all(|x| x.is_finite()) {
+            self.p = p;
+        } else {
+            self.counters.transition_fallbacks =
+                self.counters.transition_fallbacks.saturating_add(1);
+        }
+        for pend in self.pending.iter_mut() {
+            pend.m = mat_mul(&phi, &pend.m);
+        }
+        let report = self.vessel.step(&uc);
+        // Drop samples whose result is overdue, giving back the information
+        // their draw anticipated.
+        let now = self.vessel.time_ms();
+        let max_age = self.spec.lab_max_age_ms;
+        let mut i = 0;
+        while i < self.pending.len() {
+            let overdue = self
+                .pending
+                .get(i)
+                .is_some_and(|p| now.saturating_sub(p.drawn_ms) > max_age);
+            if overdue {
+                let p = self.pending.swap_remove(i);
+                self.release(&p);
+                self.counters.lab_expired = self.counters.lab_expired.saturating_add(1);
+            } else {
+                i += 1;
+            }
+        }
+        report
+    }
+
+    /// Undo the covariance reduction anticipated for a pending sample that
+    /// will not be fused: `P += u uᵀ/S`, `u = M P_s Hᵀ`.
+    fn release(&mut self, p: &Pending<S, D>) {
+        let u = mat_vec(&p.m, &p.ph);
+        for i in 0..D {
+            for j in 0..D {
+                self.p[i][j] += u[i] * u[j] / p.s;
+            }
+        }
+        symmetrize(&mut self.p);
+    }
+
+    /// Apply `x += k·ν` to the vessel state and the biases.
+    fn apply_correction(&mut self, k: &[S; D], innovation: S) {
+        let mut n = self.vessel.amounts();
+        let v = self.vessel.volume() + k[0] * innovation;
+        for i in 0..N {
+            n[i] += k[1 + i] * innovation;
+        }
+        for j in 1 + N..D {
+            self.bias[j - 1 - N] += k[j] * innovation;
+        }
+        let _ = self.vessel.set_state(v, &n);
+    }
+
+    /// The covariance half of a scalar update with row `h` and measurement
+    /// variance `r` (Joseph form; also carried into every pending sample's
+    /// `M`). Returns the gain and the innovation variance, or `None` if the
+    /// update is not possible. With `gate_nu = Some(ν)` nothing changes when
+    /// `ν²/S` exceeds the gate (returned as `Err(nis)`).
+    #[allow(clippy::type_complexity)]
+    fn covariance_update(
+        &mut self,
+        h: &[S; D],
+        r: S,
+        gate_nu: Option<S>,
+    ) -> Option<Result<([S; D], [S; D], S), S>> {
+        if !(r > S::ZERO) || !r.is_finite() {
+            return None;
+        }
+        let ph = mat_vec(&self.p, h);
+        let mut s = r;
+        for (a, b) in h.iter().zip(ph.iter()) {
+            s += *a * *b;
+        }
+        if !(s > S::ZERO) || !s.is_finite() {
+            return None;
+        }
+        if let Some(nu) = gate_nu {
+            let nis = nu * nu / s;
+            if !(nis <= self.spec.gate) {
+                return Some(Err(nis));
+            }
+        }
+        let mut k = [S::ZERO; D];
+        for (ki, phi) in k.iter_mut().zip(ph.iter()) {
+            *ki = *phi / s;
+        }
+        // A = I − K H
+        let mut a = identity::<S, D>();
+        for i in 0..D {
+            for j in 0..D {
+                a[i][j] -= k[i] * h[j];
+            }
+        }
+        let mut p = mat_mul(&mat_mul(&a, &self.p), &transpose(&a));
+        for i in 0..D {
+            for j in 0..D {
+                p[i][j] += k[i] * r * k[j];
+            }
+        }
+        symmetrize(&mut p);
+        if is_positive_definite(&p) {
+            self.p = p;
+        } else {
+            self.counters.covariance_guarded = self.counters.covariance_guarded.saturating_add(1);
+        }
+        for pend in self.pending.iter_mut() {
+            pend.m = mat_mul(&a, &pend.m);
+        }
+        Some(Ok((k, ph, s)))
+    }
+
+    /// A scalar update with measurement row `h`, innovation `nu` and
+    /// measurement variance `r`, Joseph form.
+    fn scalar_update(&mut self, h: &[S; D], nu: S, r: S) -> Update<S> {
+        if !nu.is_finite() {
+            self.counters.skipped = self.counters.skipped.saturating_add(1);
+            return Update::Skipped;
+        }
+        match self.covariance_update(h, r, Some(nu)) {
+            None => {
+                self.counters.skipped = self.counters.skipped.saturating_add(1);
+                Update::Skipped
+            }
+            Some(Err(nis)) => Update::Rejected { nis },
+            Some(Ok((k, _, s))) => {
+                self.apply_correction(&k, nu);
+                Update::Accepted { nis: nu * nu / s }
+            }
+        }
+    }
+
+    /// Fuse a level reading `z` (m, from the vessel bottom) with standard
+    /// deviation `level_sigma` from the configuration.
+    pub fn update_level(&mut self, z: S) -> Update<S> {
+        let geometry = self.vessel.model().geometry();
+        let level = self.vessel.level();
+        let area = geometry.area_at(level);
+        if !(area > S::ZERO) || !z.is_finite() {
+            self.counters.skipped = self.counters.skipped.saturating_add(1);
+            return Update::Skipped;
+        }
+        let mut h = [S::ZERO; D];
+        h[0] = S::ONE / area;
+        let sigma = self.spec.level_sigma;
+        let out = self.scalar_update(&h, z - level, sigma * sigma);
+        match out {
+            Update::Accepted { .. } => {
+                self.counters.level_accepted = self.counters.level_accepted.saturating_add(1)
+            }
+            Update::Rejected { .. } => {
+                self.counters.level_rejected = self.counters.level_rejected.saturating_add(1)
+            }
+            Update::Skipped => {}
+        }
+        out
+    }
+
+    /// Measurement row of the concentration of `species` at the current
+    /// mean, and the predicted value; `None` when near empty.
+    fn concentration_row(&self, species: usize) -> Option<([S; D], S)> {
+        let v = self.vessel.volume();
+        if self.vessel.is_near_empty() || !(v > S::ZERO) || species >= N {
+            return None;
+        }
+        let n = self.vessel.amounts();
+        let mut h = [S::ZERO; D];
+        h[0] = -n[species] / (v * v);
+        h[1 + species] = S::ONE / v;
+        Some((h, n[species] / v))
+    }
+
+    fn count_composition(&mut self, out: Update<S>) {
+        match out {
+            Update::Accepted { .. } => {
+                self.counters.composition_accepted =
+                    self.counters.composition_accepted.saturating_add(1)
+            }
+            Update::Rejected { .. } => {
+                self.counters.composition_rejected =
+                    self.counters.composition_rejected.saturating_add(1)
+            }
+            Update::Skipped => {}
+        }
+    }
+
+    /// Fuse an online analyser reading of `species` (mol/m³) with standard
+    /// deviation `sigma`, taken now.
+    pub fn update_concentration(&mut self, species: usize, c: S, sigma: S) -> Update<S> {
+        let Some((h, predicted)) = self.concentration_row(species) else {
+            self.counters.skipped = self.counters.skipped.saturating_add(1);
+            return Update::Skipped;
+        };
+        let out = self.scalar_update(&h, c - predicted, sigma * sigma);
+        self.count_composition(out);
+        out
+    }
+
+    /// A lab sample of `species` is drawn now, to be analysed with standard
+    /// deviation `sigma` (mol/m³); its result will be given to
+    /// [`Observer::lab_result`] with the same `id`. The covariance counts the
+    /// analysis from now on (see the module documentation).
+    ///
+    /// Errors: [`Error::LabQueueFull`] when `L` samples are already pending
+    /// (the sample is not recorded), [`Error::LabSampleNotObservable`] when
+    /// the vessel is near empty, the species index is out of range or the
+    /// sigma is not a positive number.
+    pub fn lab_drawn(&mut self, id: u32, species: usize, sigma: S) -> Result<(), Error> {
+        let Some((h, predicted)) = self.concentration_row(species) else {
+            return Err(Error::LabSampleNotObservable);
+        };
+        if self.pending.is_full() {
+            return Err(Error::LabQueueFull);
+        }
+        let r = sigma * sigma;
+        let Some(Ok((_, ph, s))) = self.covariance_update(&h, r, None) else {
+            return Err(Error::LabSampleNotObservable);
+        };
+        self.pending
+            .push(Pending {
+                id,
+                drawn_ms: self.vessel.time_ms(),
+                predicted,
+                ph,
+                s,
+                m: identity(),
+            })
+            .map_err(|_| Error::LabQueueFull)
+    }
+
+    /// The result `c` (mol/m³) of the lab sample `id` has arrived: fuse it
+    /// at the time it was drawn, carried to now.
+    ///
+    /// Errors: [`Error::LabSampleNotPending`] when no sample `id` is waiting
+    /// (never drawn, already fused, or dropped after the maximum age).
+    pub fn lab_result(&mut self, id: u32, c: S) -> Result<Update<S>, Error> {
+        let Some(pos) = self.pending.iter().position(|p| p.id == id) else {
+            return Err(Error::LabSampleNotPending);
+        };
+        let pend = self.pending.swap_remove(pos);
+        let nu = c - pend.predicted;
+        if !nu.is_finite() {
+            self.release(&pend);
+            self.counters.skipped = self.counters.skipped.saturating_add(1);
+            return Ok(Update::Skipped);
+        }
+        let nis = nu * nu / pend.s;
+        if !(nis <= self.spec.gate) {
+            self.release(&pend);
+            let out = Update::Rejected { nis };
+            self.count_composition(out);
+            return Ok(out);
+        }
+        let u = mat_vec(&pend.m, &pend.ph);
+        let mut k = [S::ZERO; D];
+        for (ki, ui) in k.iter_mut().zip(u.iter()) {
+            *ki = *ui / pend.s;
+        }
+        self.apply_correction(&k, nu);
+        let out = Update::Accepted { nis };
+        self.count_composition(out);
+        Ok(out)
+    }
+}

@@ -72,6 +72,20 @@ pub enum Error {
     /// A lab sample cannot be recorded: the vessel is near empty or the
     /// species does not exist.
     LabSampleNotObservable,
+    /// A signal specification number (scaling, range, rate, stuck
+    /// tolerance) is NaN or infinite.
+    SignalNonFinite,
+    /// A signal's scaling span is empty, reversed or too wide to represent:
+    /// `hi ≤ lo` or `raw_hi ≤ raw_lo`.
+    SignalScaleSpan,
+    /// A signal's valid range is empty or reversed (`max ≤ min`), or negative
+    /// clamping is asked for with `max` below zero.
+    SignalRange,
+    /// A signal's maximum rate of change is zero or negative.
+    SignalRate,
+    /// A signal's stuck detection has a zero flat duration or a negative
+    /// tolerance.
+    SignalStuck,
 }
 
 impl Error {
@@ -115,6 +129,17 @@ impl Error {
             }
             Error::LabSampleNotObservable => {
                 "lab sample cannot be recorded: vessel near empty or unknown species"
+            }
+            Error::SignalNonFinite => "signal configuration value is not a finite number",
+            Error::SignalScaleSpan => {
+                "signal scaling span must rise and be finite (hi > lo, raw_hi > raw_lo)"
+            }
+            Error::SignalRange => {
+                "signal valid range must have max > min (and max >= 0 when negatives are clamped)"
+            }
+            Error::SignalRate => "signal maximum rate of change must be positive",
+            Error::SignalStuck => {
+                "stuck detection needs a flat duration of at least 1 ms and a non-negative tolerance"
             }
         }
     }

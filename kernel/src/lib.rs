@@ -37,6 +37,7 @@
 //! |---|---|
 //! | [`scalar`] | the `f32`/`f64` trait, compensated totals |
 //! | [`units`] | SI units, constants, integer time |
+//! | [`signal`] | raw 4–20 mA / counts / engineering inputs → value + quality + flags (NE43, range, rate, stuck, hold) |
 //! | [`geometry`] | level ↔ volume ↔ cross-section of the vessel shapes |
 //! | [`model`] | raw [`VesselSpec`] → validated [`Model`]; outlets, kinetics |
 //! | [`integrate`] | exact step, MPRK22, reference RK4 and Euler |
@@ -135,6 +136,7 @@ pub mod model;
 pub mod observer;
 pub mod reference;
 pub mod scalar;
+pub mod signal;
 pub mod status;
 pub mod units;
 pub mod vessel;
@@ -144,5 +146,6 @@ pub use geometry::{Bottom, Geometry, Shape};
 pub use model::{Inputs, Kinetics, Method, Model, Outlet, ReactionSpec, VesselSpec};
 pub use observer::{BiasTarget, Observer, ObserverSpec, Update};
 pub use scalar::{Compensated, Scalar};
+pub use signal::{Quality, Reading, Signal, SignalFlags, SignalKind, SignalSpec, StuckSpec};
 pub use status::{MethodUsed, StatusFlags, StepReport};
 pub use vessel::{InitialState, Vessel};

@@ -133,16 +133,21 @@ pub(crate) fn mat_mul<S: Scalar, const N: usize>(a: &[[S; N]; N], b: &[[S; N]; N
     out
 }
 
-/// True when the symmetric matrix `p` has a Cholesky factor (is positive
-/// definite) and only finite entries. `N³/6` multiply-adds, no allocation.
+/// True when the symmetric matrix `p` has a Cholesky factor with a margin
+/// (is positive definite beyond rounding) and only finite entries: every
+/// pivot must exceed `16ε` times its diagonal entry, so that a matrix the
+/// working precision cannot tell from singular is not passed (an `f32`
+/// Cholesky without margin accepts matrices whose exact factorisation
+/// fails). `N³/6` multiply-adds, no allocation.
 pub(crate) fn is_positive_definite<S: Scalar, const N: usize>(p: &[[S; N]; N]) -> bool {
+    let margin = S::of(16.0) * S::EPSILON;
     let mut l = [[S::ZERO; N]; N];
     for j in 0..N {
         let mut d = p[j][j];
         for k in 0..j {
             d -= l[j][k] * l[j][k];
         }
-        if !(d > S::ZERO) || !d.is_finite() {
+        if !(d > margin * p[j][j]) || !(d > S::ZERO) || !d.is_finite() {
             return false;
         }
         let dj = d.sqrt();

@@ -132,8 +132,9 @@ pub struct ObserverCounters {
     pub skipped: u32,
     /// Drawn lab samples dropped because no result came within the maximum age.
     pub lab_expired: u32,
-    /// Covariance updates not applied because rounding would have left `P`
-    /// not positive definite (the previous, larger `P` was kept).
+    /// Covariance updates not applied, or predictions repaired, because
+    /// rounding would have left `P` not positive definite (the previous,
+    /// larger `P` was kept, or the diagonal loaded; see the module docs).
     pub covariance_guarded: u32,
     /// Ticks where the covariance transition fell back to `I + hF`.
     pub transition_fallbacks: u32,
@@ -215,6 +216,48 @@ fn mat_vec<S: Scalar, const D: usize>(a: &[[S; D]; D], v: &[S; D]) -> [S; D] {
         }
     }
     out
+}
+
+/// Make a symmetric `p` with positive diagonal positive definite if
+/// rounding has left it slightly indefinite (states of very different
+/// scales in `f32`). Returns `true` if `p` was already positive definite.
+///
+/// The loading is relative to each variance, `P + α·diag(P)`, which is
+/// `D^{1/2}(C + αI)D^{1/2}` for the correlation matrix `C`: it lifts the
+/// smallest eigenvalue of `C` by `α` without swamping a small variance
+/// with a large one. `α` starts at `64ε` and doubles at most 16 times; if
+/// that is not enough the correlations are dropped (the diagonal alone is
+/// positive definite). Bounded: at most 17 Cholesky attempts of `D³/6`.
+fn make_positive_definite<S: Scalar, const D: usize>(p: &mut [[S; D]; D]) -> bool {
+    if is_positive_definite(p) {
+        return true;
+    }
+    let floor = S::MIN_POSITIVE;
+    let mut diag = [S::ZERO; D];
+    for i in 0..D {
+        diag[i] = p[i][i].max(floor);
+        p[i][i] = diag[i];
+    }
+    let mut alpha = S::of(64.0) * S::EPSILON;
+    for _ in 0..16 {
+        let mut q = *p;
+        for i in 0..D {
+            q[i][i] = diag[i] * (S::ONE + alpha);
+        }
+        if is_positive_definite(&q) {
+            *p = q;
+            return false;
+        }
+        alpha = alpha * S::TWO;
+    }
+    for i in 0..D {
+        for j in 0..D {
+            if i != j {
+                p[i][j] = S::ZERO;
+            }
+        }
+    }
+    false
 }
 
 impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, const L: usize>
@@ -472,6 +515,10 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         }
         symmetrize(&mut p);
         if p.iter().flatten().all(|x| x.is_finite()) {
+            if !make_positive_definite(&mut p) {
+                self.counters.covariance_guarded =
+                    self.counters.covariance_guarded.saturating_add(1);
+            }
             self.p = p;
         } else {
             self.counters.transition_fallbacks =
@@ -512,6 +559,9 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
             }
         }
         symmetrize(&mut self.p);
+        if !make_positive_definite(&mut self.p) {
+            self.counters.covariance_guarded = self.counters.covariance_guarded.saturating_add(1);
+        }
     }
 
     /// Apply `x += k·ν` to the vessel state and the biases.
@@ -574,11 +624,10 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
             }
         }
         symmetrize(&mut p);
-        if is_positive_definite(&p) {
-            self.p = p;
-        } else {
+        if !make_positive_definite(&mut p) {
             self.counters.covariance_guarded = self.counters.covariance_guarded.saturating_add(1);
         }
+        self.p = p;
         for pend in self.pending.iter_mut() {
             pend.m = mat_mul(&a, &pend.m);
         }

@@ -1,0 +1,170 @@
+//! The fixed-tick loop and what it runs.
+//!
+//! [`Estimator`] is one tick of whatever the gateway estimates: today the
+//! open-loop kernel tick ([`holdup_kernel::Vessel::step`]); the observer
+//! (level and lab correction) implements the same trait when it exists, and
+//! is then measured by the same loop.
+//!
+//! [`run`] is the gateway's main loop: take the tick's inputs, step, measure
+//! the step's cost, wait out the rest of the tick with an
+//! [`embedded_hal::delay::DelayNs`]. On a board that delay sleeps; on the
+//! emulator it is [`VirtualDelay`], which only adds up the time asked for, so
+//! the 8 h shift runs in seconds.
+
+use embedded_hal::delay::DelayNs;
+use holdup_kernel::{Inputs, Scalar, StatusFlags, StepReport, Vessel};
+
+use crate::meter::{self, Meter};
+
+/// One tick of an estimator with inputs `U`.
+pub trait Estimator<U> {
+    /// Advance one tick.
+    fn tick(&mut self, u: &U) -> StepReport<f32>;
+}
+
+impl<const N: usize, const R: usize, const O: usize, const I: usize>
+    Estimator<Inputs<f32, N, I, O>> for Vessel<f32, N, R, O>
+{
+    #[inline(always)]
+    fn tick(&mut self, u: &Inputs<f32, N, I, O>) -> StepReport<f32> {
+        self.step(u)
+    }
+}
+
+/// A delay that does not wait: it records the time asked for (emulator).
+#[derive(Default)]
+pub struct VirtualDelay {
+    /// Total time asked for, ns.
+    pub waited_ns: u64,
+}
+
+impl DelayNs for VirtualDelay {
+    fn delay_ns(&mut self, ns: u32) {
+        self.waited_ns = self.waited_ns.saturating_add(u64::from(ns));
+    }
+}
+
+/// Per-tick cost and stack over a run.
+pub struct Stats {
+    /// Ticks run.
+    pub ticks: u32,
+    /// Cheapest tick, meter units.
+    pub min: u32,
+    /// Dearest tick, meter units.
+    pub max: u32,
+    /// Sum over all ticks, meter units.
+    pub sum: u64,
+    /// Deepest stack use of the sampled ticks, bytes.
+    pub stack: usize,
+    /// Union of the ticks' status flags.
+    pub flags: StatusFlags,
+}
+
+impl Stats {
+    /// Mean cost per tick.
+    pub fn mean(&self) -> f32 {
+        if self.ticks == 0 {
+            0.0
+        } else {
+            (self.sum as f64 / f64::from(self.ticks)) as f32
+        }
+    }
+}
+
+/// Bytes of stack below the caller painted before a sampled tick.
+const PAINT_DEPTH: usize = 16 * 1024;
+/// Room left unpainted for `paint`'s own frame.
+const PAINT_MARGIN: usize = 64;
+
+/// One tick, not inlined, so that its stack use starts at the caller's
+/// stack pointer.
+#[inline(never)]
+fn step_once<U, E: Estimator<U>>(est: &mut E, u: &U) -> StepReport<f32> {
+    est.tick(u)
+}
+
+/// Run `ticks` ticks of `period_ns` each. `inputs(n)` gives tick `n`'s
+/// inputs (from 0); `checkpoint(n, est)` is called after tick `n` (from 1)
+/// when `n % every == 0`, and that tick's stack is measured (painting is
+/// outside the measured window).
+#[allow(clippy::too_many_arguments)]
+pub fn run<U, E, M, D>(
+    est: &mut E,
+    meter: &M,
+    delay: &mut D,
+    period_ns: u32,
+    ticks: u32,
+    every: u32,
+    mut inputs: impl FnMut(u32) -> U,
+    mut checkpoint: impl FnMut(u32, &E),
+) -> Stats
+where
+    E: Estimator<U>,
+    M: Meter,
+    D: DelayNs,
+{
+    let overhead = meter.calibrate();
+    let (stack_bottom, _) = meter::stack_bounds();
+    let mut st = Stats {
+        ticks: 0,
+        min: u32::MAX,
+        max: 0,
+        sum: 0,
+        stack: 0,
+        flags: StatusFlags::empty(),
+    };
+    for n in 0..ticks {
+        let u = inputs(n);
+        let sampled = every > 0 && (n + 1) % every == 0;
+        let sp = meter::stack_pointer();
+        let low = sp.saturating_sub(PAINT_DEPTH).max(stack_bottom);
+        let top = sp.saturating_sub(PAINT_MARGIN);
+        if sampled {
+            meter::paint(low, top);
+        }
+        let t0 = meter.now();
+        let rep = step_once(est, &u);
+        let t1 = meter.now();
+        if sampled {
+            let touched = meter::lowest_touched(low, top);
+            st.stack = st.stack.max(sp.saturating_sub(touched));
+            checkpoint(n + 1, est);
+        }
+        let cost = meter.units(t0, t1).saturating_sub(overhead);
+        st.ticks += 1;
+        st.min = st.min.min(cost);
+        st.max = st.max.max(cost);
+        st.sum += u64::from(cost);
+        st.flags |= rep.flags;
+        let busy = cost.saturating_mul(meter.ns_per_unit());
+        delay.delay_ns(period_ns.saturating_sub(busy));
+    }
+    st
+}
+
+/// Relative error of `got` against `want` (absolute where `want` is 0).
+pub fn rel_error(got: f32, want: f32) -> f32 {
+    let d = Scalar::abs(got - want);
+    let w = Scalar::abs(want);
+    if w > 0.0 {
+        d / w
+    } else {
+        d
+    }
+}
+
+/// Distance in units in the last place between two finite `f32`s of the
+/// same sign (saturating; `u32::MAX` otherwise).
+pub fn ulps(a: f32, b: f32) -> u32 {
+    if !a.is_finite() || !b.is_finite() || (a < 0.0) != (b < 0.0) {
+        return u32::MAX;
+    }
+    let (x, y) = (a.to_bits(), b.to_bits());
+    x.max(y) - x.min(y)
+}
+
+/// The reference concentrations as `[V, c₀, c₁, c₂]`.
+pub fn state4<const R: usize, const O: usize>(v: &Vessel<f32, 3, R, O>) -> [f32; 4] {
+    let c = v.concentrations();
+    [v.volume(), c[0], c[1], c[2]]
+}

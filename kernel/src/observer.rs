@@ -248,7 +248,7 @@ fn make_positive_definite<S: Scalar, const D: usize>(p: &mut [[S; D]; D]) -> boo
             *p = q;
             return false;
         }
-        alpha = alpha * S::TWO;
+        alpha *= S::TWO;
     }
     for i in 0..D {
         for j in 0..D {

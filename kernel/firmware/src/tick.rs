@@ -111,7 +111,7 @@ where
         max: 0,
         sum: 0,
         stack: 0,
-        flags: StatusFlags::empty(),
+        flags: StatusFlags::NONE,
     };
     for n in 0..ticks {
         let u = inputs(n);

@@ -6,6 +6,9 @@
 //! capacity. Source of the properties: the definition of a covariance
 //! matrix and of the balance state (amounts and holdup are non-negative).
 
+// Matrix loops read like the formulas (same choice as the kernel).
+#![allow(clippy::needless_range_loop)]
+
 use heapless::Vec as HVec;
 use holdup_kernel::{BiasTarget, Inputs, Observer, ObserverSpec, Scalar};
 use proptest::prelude::*;

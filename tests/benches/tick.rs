@@ -7,7 +7,8 @@
 
 use criterion::{criterion_group, criterion_main, Criterion};
 use holdup_kernel::reference;
-use holdup_kernel::{Inputs, Method, Outlet, Scalar};
+use heapless::Vec as HVec;
+use holdup_kernel::{BiasTarget, Inputs, Method, Observer, ObserverSpec, Outlet, Scalar};
 use holdup_sim::verify::{cylinder, vessel};
 use std::hint::black_box;
 
@@ -16,6 +17,35 @@ fn reference_tick<S: Scalar>(c: &mut Criterion, name: &str) {
     // Mid-shift inputs (after the temperature ramp has begun).
     let u = reference::inputs_at::<S>(5 * 3600 * 1000);
     c.bench_function(name, |b| b.iter(|| black_box(ves.step(black_box(&u)))));
+}
+
+/// The reference configuration with the observer: 5 states (holdup, 3
+/// amounts, the caustic meter's bias), a level update every tick and one lab
+/// sample pending (its transition product is carried every tick).
+fn observer_tick<S: Scalar>(c: &mut Criterion, name: &str) {
+    let ves = reference::vessel::<S>().expect("reference configuration is valid");
+    let spec = ObserverSpec {
+        level_sigma: S::of(0.003),
+        volume_noise: S::of(1e-8),
+        amount_noise: [S::of(1e-4); 3],
+        bias_noise: S::of(1e-12),
+        initial_volume_sigma: S::of(0.01),
+        initial_amount_sigma: [S::of(2.0); 3],
+        initial_bias_sigma: S::of(0.05),
+        gate: S::of(9.0),
+        lab_max_age_ms: u64::MAX,
+        biases: HVec::from_slice(&[BiasTarget::Inlet(0)]).expect("fits"),
+    };
+    let mut obs: Observer<S, 3, 2, 1, 5, 2> = Observer::new(ves, spec).expect("valid");
+    obs.lab_drawn(1, 0, S::of(0.1)).expect("slot");
+    let u = reference::inputs_at::<S>(5 * 3600 * 1000);
+    let z = obs.vessel().level();
+    c.bench_function(name, |b| {
+        b.iter(|| {
+            black_box(obs.tick(black_box(&u)));
+            black_box(obs.update_level(black_box(z)))
+        })
+    });
 }
 
 fn reference_tick_rk4(c: &mut Criterion) {
@@ -63,6 +93,8 @@ fn ticks(c: &mut Criterion) {
     exact_tick::<f32>(c, "3 species, no reaction (exact step), f32");
     exact_tick::<f64>(c, "3 species, no reaction (exact step), f64");
     reference_tick_rk4(c);
+    observer_tick::<f32>(c, "reference tick + observer (level update, 1 lab pending), f32");
+    observer_tick::<f64>(c, "reference tick + observer (level update, 1 lab pending), f64");
 }
 
 criterion_group!(benches, ticks);

@@ -23,8 +23,8 @@ use toml::de::{DeTable, DeValue};
 use toml::Spanned;
 
 use crate::plant::{
-    limits, Initial, Inlet, Interpolation, Kinetics, LogFormat, LogOptions, Outlet, OutletKind,
-    Plant, Reaction, ScalarKind, Signal, Species, TagOptions, TimeFormat,
+    limits, BiasMeter, Estimator, Initial, Inlet, Interpolation, Kinetics, LogFormat, LogOptions,
+    Outlet, OutletKind, Plant, Reaction, ScalarKind, Signal, Species, TagOptions, TimeFormat,
 };
 use crate::units::{self, Kind, ToSi, UnitError};
 
@@ -108,6 +108,7 @@ const TOP_KEYS: &[&str] = &[
     "initial",
     "log",
     "tags",
+    "estimator",
 ];
 const PLANT_KEYS: &[&str] = &["name", "tick", "scalar", "method", "min_holdup"];
 const VESSEL_KEYS: &[&str] = &[
@@ -148,6 +149,23 @@ const INITIAL_KEYS: &[&str] = &["volume", "level", "concentrations", "temperatur
 const LOG_KEYS: &[&str] = &["format", "time", "time_column", "max_age"];
 const TAG_KEYS: &[&str] = &["interpolation", "max_age"];
 const RATE_CONSTANT_KEYS: &[&str] = &["value", "unit"];
+const ESTIMATOR_KEYS: &[&str] = &[
+    "level_sigma",
+    "holdup_drift",
+    "concentration_drift",
+    "initial_volume_sigma",
+    "initial_concentration_sigma",
+    "bias_meters",
+    "bias_sigma",
+    "bias_drift",
+    "gate",
+    "lab_sigma",
+    "lab_max_age",
+    "flow_sigma",
+    "closure_window",
+    "cusum_k",
+    "cusum_h",
+];
 
 /// Shortest and longest tick, ms.
 const TICK_RANGE_MS: (u64, u64) = (1, 3_600_000);
@@ -157,6 +175,46 @@ const DEFAULT_MAX_AGE_MS: u64 = 600_000;
 const DEFAULT_REFERENCE_TEMPERATURE: f64 = 298.15;
 /// Largest reaction order the kernel supports.
 const MAX_ORDER: f64 = 4.0;
+
+/// Most meters whose bias the estimator tracks.
+const MAX_BIAS_METERS: usize = 4;
+/// Default `[estimator] holdup_drift`: this fraction of the capacity.
+const DEFAULT_HOLDUP_DRIFT_OF_CAPACITY: f64 = 0.001;
+/// Default `[estimator] concentration_drift`: this fraction of the largest
+/// initial or constant feed concentration, …
+const DEFAULT_CONCENTRATION_DRIFT_OF_LARGEST: f64 = 0.01;
+/// … but at least this, mol/m³.
+const MIN_CONCENTRATION_DRIFT: f64 = 0.01;
+/// Default `[estimator] initial_volume_sigma`: this fraction of the initial
+/// volume, …
+const DEFAULT_INITIAL_VOLUME_SIGMA_OF_VOLUME: f64 = 0.01;
+/// … but at least this (1 L), m³.
+const MIN_INITIAL_VOLUME_SIGMA: f64 = 0.001;
+/// Default `[estimator] initial_concentration_sigma`: this fraction of each
+/// initial concentration, …
+const DEFAULT_INITIAL_CONCENTRATION_SIGMA_OF_VALUE: f64 = 0.1;
+/// … but at least this, mol/m³.
+const MIN_INITIAL_CONCENTRATION_SIGMA: f64 = 0.1;
+/// Default `[estimator] bias_sigma` (relative).
+const DEFAULT_BIAS_SIGMA: f64 = 0.05;
+/// Default `[estimator] bias_drift` (relative, per hour).
+const DEFAULT_BIAS_DRIFT: f64 = 0.001;
+/// Default `[estimator] gate` (χ², 1 degree of freedom: ≈ 99.7 %).
+const DEFAULT_GATE: f64 = 9.0;
+/// Default `[estimator] lab_sigma` (relative).
+const DEFAULT_LAB_SIGMA: f64 = 0.02;
+/// Default `[estimator] lab_max_age`: 8 h.
+const DEFAULT_LAB_MAX_AGE_MS: u64 = 28_800_000;
+/// Default `[estimator] flow_sigma` (relative).
+const DEFAULT_FLOW_SIGMA: f64 = 0.01;
+/// Default `[estimator] closure_window`: 30 min (or 2 ticks if longer).
+const DEFAULT_CLOSURE_WINDOW_MS: u64 = 1_800_000;
+/// Shortest closure window, in ticks.
+const MIN_CLOSURE_WINDOW_TICKS: u64 = 2;
+/// Default `[estimator] cusum_k`, σ.
+const DEFAULT_CUSUM_K: f64 = 0.5;
+/// Default `[estimator] cusum_h`, σ.
+const DEFAULT_CUSUM_H: f64 = 5.0;
 
 // ---------------------------------------------------------------------------
 // Context, tables and values.
@@ -1120,6 +1178,23 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
         }
     }
 
+    // [estimator]
+    let estimator = match section(root, "estimator")? {
+        None => None,
+        Some(e) => Some(read_estimator(
+            &e,
+            &EstimatorContext {
+                tick_ms: u64::from(tick_ms),
+                capacity,
+                has_level: level.is_some(),
+                species: &species,
+                inlets: &inlets,
+                outlets: &outlets,
+                initial: &initial,
+            },
+        )?),
+    };
+
     Ok(Plant {
         path: ctx.path.to_path_buf(),
         name: name.to_string(),
@@ -1137,6 +1212,7 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
         initial,
         tags: tag_options,
         log,
+        estimator,
     })
 }
 
@@ -1722,6 +1798,351 @@ fn read_log(t: &Tbl<'_>) -> R<LogOptions> {
         time_column,
         max_age_ms,
     })
+}
+
+/// What `[estimator]` is checked against and its defaults derived from.
+struct EstimatorContext<'a> {
+    tick_ms: u64,
+    /// Vessel capacity, m³.
+    capacity: f64,
+    /// Whether `[level]` is configured.
+    has_level: bool,
+    species: &'a [Species],
+    inlets: &'a [Inlet],
+    outlets: &'a [Outlet],
+    initial: &'a Initial,
+}
+
+/// `[estimator]`.
+fn read_estimator(t: &Tbl<'_>, env: &EstimatorContext<'_>) -> R<Estimator> {
+    let ctx = t.ctx;
+    t.check_keys(ESTIMATOR_KEYS)?;
+    if !env.has_level {
+        return Err(t.err_here(
+            "the estimator corrects the balances with the measured level, but there is no \
+             [level] section; add one with the level transmitter's tag \
+             ([level] tag = \"...\", unit = \"m\") or remove [estimator]",
+        ));
+    }
+    let level_sigma = t
+        .req_quantity(
+            "level_sigma",
+            Conv::Kind(Kind::Length),
+            "the level transmitter's noise, 1σ, e.g. { value = 3, unit = \"mm\" }",
+        )?
+        .positive(ctx)?
+        .si;
+    let sigma = |key: &str, kind: Kind, default: f64| -> R<f64> {
+        match t.quantity(key, Conv::Kind(kind))? {
+            Some(q) => Ok(q.non_negative(ctx)?.si),
+            None => Ok(default),
+        }
+    };
+    let holdup_drift = sigma(
+        "holdup_drift",
+        Kind::Volume,
+        DEFAULT_HOLDUP_DRIFT_OF_CAPACITY * env.capacity,
+    )?;
+    let initial_volume_sigma = sigma(
+        "initial_volume_sigma",
+        Kind::Volume,
+        (DEFAULT_INITIAL_VOLUME_SIGMA_OF_VOLUME * env.initial.volume).max(MIN_INITIAL_VOLUME_SIGMA),
+    )?;
+
+    // Only what is known now: the initial state and the constant feeds.
+    let largest = env
+        .initial
+        .concentrations
+        .iter()
+        .chain(
+            env.inlets
+                .iter()
+                .flat_map(|i| i.feed.iter())
+                .filter_map(|s| match s {
+                    Signal::Constant(c) => Some(c),
+                    Signal::Tag { .. } => None,
+                }),
+        )
+        .fold(0.0_f64, |a, &c| a.max(c));
+    let drift = (DEFAULT_CONCENTRATION_DRIFT_OF_LARGEST * largest).max(MIN_CONCENTRATION_DRIFT);
+    let concentration_drift = species_sigmas(
+        t,
+        "concentration_drift",
+        env.species,
+        vec![drift; env.species.len()],
+    )?;
+    let initial_concentration_sigma = species_sigmas(
+        t,
+        "initial_concentration_sigma",
+        env.species,
+        env.initial
+            .concentrations
+            .iter()
+            .map(|c| {
+                (DEFAULT_INITIAL_CONCENTRATION_SIGMA_OF_VALUE * c)
+                    .max(MIN_INITIAL_CONCENTRATION_SIGMA)
+            })
+            .collect(),
+    )?;
+
+    let bias_meters = read_bias_meters(t, env.inlets, env.outlets)?;
+    let bias_sigma = plain_number(t, "bias_sigma", DEFAULT_BIAS_SIGMA, false)?.0;
+    let bias_drift = plain_number(t, "bias_drift", DEFAULT_BIAS_DRIFT, false)?.0;
+    let gate = plain_number(t, "gate", DEFAULT_GATE, true)?.0;
+    let lab_sigma = plain_number(t, "lab_sigma", DEFAULT_LAB_SIGMA, true)?.0;
+    let flow_sigma = plain_number(t, "flow_sigma", DEFAULT_FLOW_SIGMA, false)?.0;
+
+    let lab_max_age_ms = match t.duration("lab_max_age")? {
+        None => DEFAULT_LAB_MAX_AGE_MS,
+        Some((0, at)) => return Err(t.err(at, "lab_max_age", "must be longer than 0 ms")),
+        Some((ms, _)) => ms,
+    };
+    let shortest_window = env.tick_ms.saturating_mul(MIN_CLOSURE_WINDOW_TICKS);
+    let closure_window_ms = match t.duration("closure_window")? {
+        None => DEFAULT_CLOSURE_WINDOW_MS.max(shortest_window),
+        Some((ms, at)) if ms < shortest_window => {
+            return Err(t.err(
+                at,
+                "closure_window",
+                format!(
+                    "must be at least {MIN_CLOSURE_WINDOW_TICKS} ticks ({shortest_window} ms \
+                     with tick {} ms), got {ms} ms",
+                    env.tick_ms
+                ),
+            ))
+        }
+        Some((ms, _)) => ms,
+    };
+
+    let (cusum_k, k_at) = plain_number(t, "cusum_k", DEFAULT_CUSUM_K, true)?;
+    let (cusum_h, h_at) = plain_number(t, "cusum_h", DEFAULT_CUSUM_H, true)?;
+    if cusum_h <= cusum_k {
+        // Name the key that is written (cusum_h if both are).
+        return Err(match (h_at, k_at) {
+            (Some(at), Some(_)) => t.err(
+                at,
+                "cusum_h",
+                format!("must be greater than cusum_k ({cusum_k}), got {cusum_h}"),
+            ),
+            (Some(at), None) => t.err(
+                at,
+                "cusum_h",
+                format!("must be greater than cusum_k (default {DEFAULT_CUSUM_K}), got {cusum_h}"),
+            ),
+            (None, Some(at)) => t.err(
+                at,
+                "cusum_k",
+                format!("must be less than cusum_h (default {DEFAULT_CUSUM_H}), got {cusum_k}"),
+            ),
+            // The defaults are in order; kept for completeness.
+            (None, None) => t.err_here(format!(
+                "cusum_h ({cusum_h}) must be greater than cusum_k ({cusum_k})"
+            )),
+        });
+    }
+
+    Ok(Estimator {
+        level_sigma,
+        holdup_drift,
+        concentration_drift,
+        initial_volume_sigma,
+        initial_concentration_sigma,
+        bias_meters,
+        bias_sigma,
+        bias_drift,
+        gate,
+        lab_sigma,
+        lab_max_age_ms,
+        flow_sigma,
+        closure_window_ms,
+        cusum_k,
+        cusum_h,
+    })
+}
+
+/// An optional plain number (relative, or in σ): positive if `positive`,
+/// else not negative; `default` when absent. With the offset of the value
+/// if given.
+fn plain_number(t: &Tbl<'_>, key: &str, default: f64, positive: bool) -> R<(f64, Option<usize>)> {
+    match t.number(key)? {
+        None => Ok((default, None)),
+        Some((x, at)) if positive && x <= 0.0 => {
+            Err(t.err(at, key, format!("must be positive, got {x}")))
+        }
+        Some((x, at)) if x < 0.0 => Err(t.err(at, key, format!("must not be negative, got {x}"))),
+        Some((x, at)) => Ok((x, Some(at))),
+    }
+}
+
+/// A concentration σ of `[estimator]`: one `{ value, unit }` for every
+/// species, or a table of species = `{ value, unit }` where species not
+/// listed keep their `default`. Not negative.
+fn species_sigmas(t: &Tbl<'_>, key: &str, species: &[Species], default: Vec<f64>) -> R<Vec<f64>> {
+    let Some(v) = t.get(key) else {
+        return Ok(default);
+    };
+    let c = t.child(
+        key,
+        v,
+        "a concentration { value = ..., unit = \"mol/m3\" } or a table of species = { value, unit }",
+    )?;
+    // A quantity has a plain `value`, `unit` (or a stray `tag`); a species
+    // entry is always a table, even for a species named "value".
+    let one_for_all = c.entries().iter().any(|(k, v)| {
+        matches!(k.get_ref().as_ref(), "value" | "unit" | "tag")
+            && !matches!(v.get_ref(), DeValue::Table(_))
+    });
+    let constant = |q: &Tbl<'_>, conv: Conv| -> R<f64> {
+        match source_of(q, conv, TagMode::Never)? {
+            Source::Const(q) => Ok(q.non_negative(t.ctx)?.si),
+            // `TagMode::Never` refuses a tag.
+            Source::Tag(tag) => Err(q.err(tag.at, "tag", "must be a constant")),
+        }
+    };
+    if one_for_all {
+        // A mass-based unit converts with each species' molar mass: not
+        // one value for all species.
+        if let Some((unit, at)) = c.string("unit")? {
+            if let Err(UnitError::NeedsMolarMass { .. }) = units::concentration_to_si(unit, None) {
+                let amount: Vec<&str> = units::valid_units(Kind::Concentration)
+                    .iter()
+                    .copied()
+                    .filter(|u| units::concentration_to_si(u, None).is_ok())
+                    .collect();
+                let example = species.first().map_or("A", |s| s.name.as_str());
+                return Err(c.err(
+                    at,
+                    "unit",
+                    format!(
+                        "mass-based unit \"{unit}\" cannot be given for all species at once; \
+                         use one of {} or give it per species: \
+                         {key} = {{ {example} = {{ value = ..., unit = \"{unit}\" }} }}",
+                        list(&amount)
+                    ),
+                ));
+            }
+        }
+        let x = constant(&c, Conv::Concentration(None))?;
+        return Ok(vec![x; species.len()]);
+    }
+    let mut out = default;
+    for (index, name, _, value) in c.species_map(species)? {
+        let molar_mass = species.get(index).and_then(|s| s.molar_mass);
+        let q = c.child(name, value, "a concentration { value, unit }")?;
+        let x = constant(&q, Conv::Concentration(molar_mass))?;
+        if let Some(slot) = out.get_mut(index) {
+            *slot = x;
+        }
+    }
+    Ok(out)
+}
+
+/// `[estimator] bias_meters`: names of inlets or measured outlets whose
+/// flow is read from the log.
+fn read_bias_meters(t: &Tbl<'_>, inlets: &[Inlet], outlets: &[Outlet]) -> R<Vec<BiasMeter>> {
+    let key = "bias_meters";
+    let Some(v) = t.get(key) else {
+        return Ok(Vec::new());
+    };
+    let DeValue::Array(items) = v.get_ref() else {
+        return Err(t.err(
+            v.span().start,
+            key,
+            format!(
+                "expected an array of inlet or measured-outlet names, e.g. [\"{}\"], got {}",
+                inlets.first().map_or("...", |i| i.name.as_str()),
+                type_name(v.get_ref())
+            ),
+        ));
+    };
+    if items.len() > MAX_BIAS_METERS {
+        return Err(t.err(
+            v.span().start,
+            key,
+            format!(
+                "too many bias meters: {}, at most {MAX_BIAS_METERS}",
+                items.len()
+            ),
+        ));
+    }
+    let names_of = |names: Vec<&str>| {
+        if names.is_empty() {
+            "none".to_string()
+        } else {
+            list(&names)
+        }
+    };
+    let valid = || {
+        let measured: Vec<&str> = outlets
+            .iter()
+            .filter(|o| matches!(o.kind, OutletKind::Measured(_)))
+            .map(|o| o.name.as_str())
+            .collect();
+        format!(
+            "inlets: {}; measured outlets: {}",
+            names_of(inlets.iter().map(|i| i.name.as_str()).collect()),
+            names_of(measured)
+        )
+    };
+    let mut out: Vec<BiasMeter> = Vec::new();
+    for (i, item) in items.iter().enumerate() {
+        let item_key = format!("{key}[{i}]");
+        let at = item.span().start;
+        let bad = |m: String| t.err(at, &item_key, m);
+        let DeValue::String(name) = item.get_ref() else {
+            return Err(bad(format!(
+                "expected an inlet or measured-outlet name (a string), got {}",
+                type_name(item.get_ref())
+            )));
+        };
+        let name: &str = name.as_ref();
+        let inlet = inlets.iter().position(|x| x.name == name);
+        let outlet = outlets.iter().position(|x| x.name == name);
+        let (is_outlet, index, flow) = match (inlet, outlet) {
+            (Some(_), Some(_)) => {
+                return Err(bad(format!(
+                    "\"{name}\" names both an inlet and an outlet; rename one of them \
+                     to estimate its meter's bias"
+                )))
+            }
+            (None, None) => {
+                return Err(bad(format!(
+                    "unknown inlet or measured outlet \"{name}\"; {}",
+                    valid()
+                )))
+            }
+            (Some(index), None) => (false, index, inlets.get(index).map(|x| &x.flow)),
+            (None, Some(index)) => match outlets.get(index).map(|x| &x.kind) {
+                Some(OutletKind::Measured(flow)) => (true, index, Some(flow)),
+                Some(OutletKind::Orifice { .. }) | Some(OutletKind::Weir { .. }) | None => {
+                    return Err(bad(format!(
+                        "outlet \"{name}\" is not metered (its flow is computed from the \
+                         level), so it has no meter bias; {}",
+                        valid()
+                    )))
+                }
+            },
+        };
+        if !matches!(flow, Some(Signal::Tag { .. })) {
+            let what = if is_outlet { "outlet" } else { "inlet" };
+            return Err(bad(format!(
+                "{what} \"{name}\" has a constant flow, not a meter read from the log; \
+                 only a flow given as {{ tag, unit }} can have a bias"
+            )));
+        }
+        if out
+            .iter()
+            .any(|m| m.outlet == is_outlet && m.index == index)
+        {
+            return Err(bad(format!("\"{name}\" is listed twice")));
+        }
+        out.push(BiasMeter {
+            name: name.to_string(),
+            outlet: is_outlet,
+            index,
+        });
+    }
+    Ok(out)
 }
 
 #[cfg(test)]
@@ -3107,5 +3528,680 @@ volume = { value = 1, unit = "m3" }
             n += 1;
         }
         assert!(n > 1000);
+    }
+
+    /// The `[estimator]` example of `docs/config.md`, appended to `EXAMPLE`.
+    const ESTIMATOR: &str = r#"
+[estimator]                                      # optional; needs [level]
+level_sigma = { value = 3, unit = "mm" }         # required: level transmitter noise, 1σ
+holdup_drift = { value = 10, unit = "L" }        # 1σ unexplained holdup change per hour
+concentration_drift = { value = 0.5, unit = "mol/m3" }   # 1σ per hour, all species, or per
+                                                 # species: { NaOH = { value = 0.5, unit = "mol/m3" } }
+initial_volume_sigma = { value = 20, unit = "L" }
+initial_concentration_sigma = { NaOH = { value = 2, unit = "mol/m3" } }   # or one value for all
+bias_meters = ["caustic pump"]                   # inlets or measured outlets read from the log, at most 4
+bias_sigma = 0.05                                # initial 1σ of the relative meter bias
+bias_drift = 0.001                               # relative 1σ per hour
+gate = 9.0                                       # innovation gate, chi-square with 1 degree of freedom
+lab_sigma = 0.02                                 # relative 1σ of a lab analysis
+lab_max_age = "8 h"                              # a sample without a result after this is dropped
+flow_sigma = 0.01                                # relative 1σ of the flow meters' noise
+closure_window = "30 min"                        # balance-closure residual window, at least 2 ticks
+cusum_k = 0.5                                    # CUSUM reference value, in σ of the residual
+cusum_h = 5.0                                    # CUSUM decision interval, in σ (above cusum_k)
+"#;
+
+    /// `EXAMPLE` with `[estimator]` holding only `lines`.
+    fn with_estimator(lines: &str) -> String {
+        format!("{EXAMPLE}\n[estimator]\nlevel_sigma = {{ value = 3, unit = \"mm\" }}\n{lines}")
+    }
+
+    fn estimator(text: &str) -> Estimator {
+        ok(text)
+            .estimator
+            .unwrap_or_else(|| panic!("no estimator:\n{text}"))
+    }
+
+    fn all_close(a: &[f64], b: &[f64]) -> bool {
+        a.len() == b.len() && a.iter().zip(b).all(|(x, y)| close(*x, *y))
+    }
+
+    #[test]
+    fn estimator_is_absent_without_the_section() {
+        assert_eq!(ok(EXAMPLE).estimator, None);
+        assert_eq!(ok(MINIMAL).estimator, None);
+    }
+
+    #[test]
+    fn estimator_docs_example_parses_into_si() {
+        let text = format!("{EXAMPLE}{ESTIMATOR}");
+        let e = estimator(&text);
+        assert!(close(e.level_sigma, 0.003));
+        assert!(close(e.holdup_drift, 0.01));
+        assert_eq!(e.concentration_drift, [0.5; 4]);
+        assert!(close(e.initial_volume_sigma, 0.02));
+        // NaOH given; the others keep the default max(10 % of 0, 0.1).
+        assert_eq!(e.initial_concentration_sigma, [2.0, 0.1, 0.1, 0.1]);
+        assert_eq!(
+            e.bias_meters,
+            [BiasMeter {
+                name: "caustic pump".into(),
+                outlet: false,
+                index: 0
+            }]
+        );
+        assert_eq!((e.bias_sigma, e.bias_drift), (0.05, 0.001));
+        assert_eq!((e.gate, e.lab_sigma, e.flow_sigma), (9.0, 0.02, 0.01));
+        assert_eq!(
+            (e.lab_max_age_ms, e.closure_window_ms),
+            (28_800_000, 1_800_000)
+        );
+        assert_eq!((e.cusum_k, e.cusum_h), (0.5, 5.0));
+    }
+
+    #[test]
+    fn estimator_full_section_in_other_units() {
+        let text = with_estimator(
+            "holdup_drift = { value = 2, unit = \"US gal\" }\n\
+             concentration_drift = { value = 0.5, unit = \"mmol/L\" }\n\
+             initial_volume_sigma = { value = 1, unit = \"ft3\" }\n\
+             initial_concentration_sigma = { value = 0.002, unit = \"kmol/m3\" }\n\
+             bias_meters = [\"product\", \"caustic pump\"]\n\
+             bias_sigma = 0.1\n\
+             bias_drift = 0.002\n\
+             gate = 6.63\n\
+             lab_sigma = 0.03\n\
+             lab_max_age = \"6 h\"\n\
+             flow_sigma = 0.015\n\
+             closure_window = \"20 min\"\n\
+             cusum_k = 1\n\
+             cusum_h = 4\n",
+        )
+        .replace(
+            "level_sigma = { value = 3, unit = \"mm\" }",
+            "level_sigma = { value = 0.25, unit = \"in\" }",
+        );
+        let e = estimator(&text);
+        // 0.25 in = 6.35 mm; 2 US gal = 7.570823568 L; 1 ft³ = 28.316846592 L.
+        assert!(close(e.level_sigma, 0.00635));
+        assert!(close(e.holdup_drift, 0.007_570_823_568));
+        assert!(all_close(&e.concentration_drift, &[0.5; 4]));
+        assert!(close(e.initial_volume_sigma, 0.028_316_846_592));
+        assert!(all_close(&e.initial_concentration_sigma, &[2.0; 4]));
+        // In the order written: the measured outlet, then the inlet.
+        assert_eq!(
+            e.bias_meters,
+            [
+                BiasMeter {
+                    name: "product".into(),
+                    outlet: true,
+                    index: 0
+                },
+                BiasMeter {
+                    name: "caustic pump".into(),
+                    outlet: false,
+                    index: 0
+                }
+            ]
+        );
+        assert_eq!((e.bias_sigma, e.bias_drift), (0.1, 0.002));
+        assert_eq!((e.gate, e.lab_sigma, e.flow_sigma), (6.63, 0.03, 0.015));
+        assert_eq!(
+            (e.lab_max_age_ms, e.closure_window_ms),
+            (21_600_000, 1_200_000)
+        );
+        assert_eq!((e.cusum_k, e.cusum_h), (1.0, 4.0));
+    }
+
+    #[test]
+    fn estimator_defaults_with_only_level_sigma() {
+        let e = estimator(&with_estimator(""));
+        assert!(close(e.level_sigma, 0.003));
+        // Largest known concentration: the caustic feed, 0.1 mol/L = 100
+        // mol/m³ (the ester feed is a tag, the initial NaOH only 5): 1 %.
+        assert!(all_close(&e.concentration_drift, &[1.0; 4]));
+        // 10 % of 5 mol/m³ for NaOH; at least 0.1 mol/m³ for the others.
+        assert!(all_close(
+            &e.initial_concentration_sigma,
+            &[0.5, 0.1, 0.1, 0.1]
+        ));
+        // 1 % of 2.5 m³.
+        assert!(close(e.initial_volume_sigma, 0.025));
+        assert!(e.bias_meters.is_empty());
+        assert_eq!((e.bias_sigma, e.bias_drift), (0.05, 0.001));
+        assert_eq!((e.gate, e.lab_sigma, e.flow_sigma), (9.0, 0.02, 0.01));
+        assert_eq!(
+            (e.lab_max_age_ms, e.closure_window_ms),
+            (28_800_000, 1_800_000)
+        );
+        assert_eq!((e.cusum_k, e.cusum_h), (0.5, 5.0));
+
+        // A flat cylinder (capacity π·0.8²·2 m³) holding 50 L, nothing
+        // dissolved, ticking once an hour.
+        let text = format!(
+            "{}\n[level]\ntag = \"LI-1\"\nunit = \"m\"\n\n[estimator]\nlevel_sigma = {{ value = 1, unit = \"cm\" }}\n",
+            MINIMAL
+                .replace("tick = \"500 ms\"", "tick = \"1 h\"")
+                .replace(
+                    "volume = { value = 1, unit = \"m3\" }",
+                    "volume = { value = 50, unit = \"L\" }"
+                )
+        );
+        let e = estimator(&text);
+        let capacity = core::f64::consts::PI * 0.64 * 2.0;
+        assert!(close(e.holdup_drift, 0.001 * capacity));
+        // 1 % of 50 L is below the 1 L floor.
+        assert!(close(e.initial_volume_sigma, 0.001));
+        assert_eq!(e.concentration_drift, [0.01, 0.01]);
+        assert_eq!(e.initial_concentration_sigma, [0.1, 0.1]);
+        // 30 min is shorter than 2 ticks of 1 h: the default is 2 ticks.
+        assert_eq!(e.closure_window_ms, 7_200_000);
+    }
+
+    #[test]
+    fn estimator_scalar_and_per_species_concentrations() {
+        // One value for all species, in any amount unit.
+        let e = estimator(&with_estimator(
+            "concentration_drift = { value = 0.002, unit = \"mol/L\" }\n",
+        ));
+        assert!(all_close(&e.concentration_drift, &[2.0; 4]));
+        // Per species: the rest keep the default (1 mol/m³, see above); a
+        // mass-based unit uses the species' molar mass: 0.881 g/L of EtOAc
+        // (88.106 g/mol) = 10 mol/m³ (approximately: 0.881/0.088106).
+        let e = estimator(&with_estimator(
+            "concentration_drift = { NaOAc = { value = 3, unit = \"mol/m3\" }, EtOAc = { value = 0.881, unit = \"g/L\" } }\n",
+        ));
+        assert!(all_close(
+            &e.concentration_drift,
+            &[1.0, 0.881 / 0.088_106, 3.0, 1.0]
+        ));
+        // As a sub-table, and an empty table keeps every default.
+        let e = estimator(&with_estimator(
+            "[estimator.initial_concentration_sigma]\nEtOH = { value = 7, unit = \"mmol/L\" }\n",
+        ));
+        assert!(all_close(
+            &e.initial_concentration_sigma,
+            &[0.5, 0.1, 0.1, 7.0]
+        ));
+        let e = estimator(&with_estimator("initial_concentration_sigma = {}\n"));
+        assert!(all_close(
+            &e.initial_concentration_sigma,
+            &[0.5, 0.1, 0.1, 0.1]
+        ));
+        // A species named like a quantity's key is still a species entry.
+        let text = edit(EXAMPLE, "name = \"EtOH\"", "name = \"value\"")
+            .replace("EtOH = 1 }", "value = 1 }")
+            + "\n[estimator]\nlevel_sigma = { value = 3, unit = \"mm\" }\n\
+               concentration_drift = { value = { value = 4, unit = \"mol/m3\" } }\n";
+        assert!(all_close(
+            &estimator(&text).concentration_drift,
+            &[1.0, 1.0, 1.0, 4.0]
+        ));
+
+        // A mass-based unit cannot apply to all species at once.
+        let text = with_estimator("concentration_drift = { value = 1, unit = \"g/L\" }\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "concentration_drift",
+            "[estimator] concentration_drift.unit",
+            &[
+                "\"g/L\" cannot be given for all species",
+                "mol/m3, mol/L, mmol/L, kmol/m3",
+                "concentration_drift = { NaOH = { value = ..., unit = \"g/L\" } }",
+            ],
+        );
+        // A bare number for a species.
+        let text = with_estimator("concentration_drift = { NaOH = 0.5 }\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "concentration_drift",
+            "[estimator] concentration_drift.NaOH",
+            &["expected a concentration { value, unit }, got a float"],
+        );
+        // A bare number for all.
+        let text = with_estimator("initial_concentration_sigma = 2\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "initial_concentration_sigma",
+            "[estimator] initial_concentration_sigma",
+            &["or a table of species", "got an integer"],
+        );
+        // The scalar form's keys are those of a constant quantity.
+        let text = with_estimator(
+            "concentration_drift = { value = 1, unit = \"mol/m3\", tag = \"AI-1\" }\n",
+        );
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "concentration_drift",
+            "[estimator] concentration_drift.tag",
+            &["valid keys: value, unit", "cannot be read from the log"],
+        );
+        let text = with_estimator("concentration_drift = { value = 1, unit = \"mol/kg\" }\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "concentration_drift",
+            "[estimator] concentration_drift.unit",
+            &["unknown concentration unit \"mol/kg\""],
+        );
+    }
+
+    #[test]
+    fn estimator_unknown_species_in_a_table() {
+        let text = with_estimator(
+            "initial_concentration_sigma = {\n  NaOH = { value = 1, unit = \"mol/m3\" },\n  KOH = { value = 1, unit = \"mol/m3\" } }\n",
+        );
+        // A multi-line inline table is TOML 1.1; the reader's parser takes it.
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "KOH",
+            "[estimator] initial_concentration_sigma.KOH",
+            &["unknown species \"KOH\"; defined species: NaOH, EtOAc, NaOAc, EtOH"],
+        );
+        let text =
+            with_estimator("concentration_drift = { Water = { value = 1, unit = \"mol/m3\" } }\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "Water",
+            "[estimator] concentration_drift.Water",
+            &["defined species: NaOH, EtOAc, NaOAc, EtOH"],
+        );
+    }
+
+    #[test]
+    fn estimator_unknown_key() {
+        let text = with_estimator("gate = 9\nlab_max_agee = \"6 h\"\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "lab_max_agee",
+            "[estimator] lab_max_agee",
+            &[
+                "unknown key; valid keys: level_sigma, holdup_drift, concentration_drift, \
+               initial_volume_sigma, initial_concentration_sigma, bias_meters, bias_sigma, \
+               bias_drift, gate, lab_sigma, lab_max_age, flow_sigma, closure_window, cusum_k, \
+               cusum_h",
+            ],
+        );
+        // The top level lists the new section.
+        let text = format!("{MINIMAL}\n[estimater]\n");
+        let e = err(&text);
+        check(&e, &text, "[estimater]", "estimater", &["tags, estimator"]);
+    }
+
+    #[test]
+    fn estimator_needs_level_and_level_sigma() {
+        let text =
+            format!("{MINIMAL}\n[estimator]\nlevel_sigma = {{ value = 3, unit = \"mm\" }}\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "[estimator]",
+            "[estimator]",
+            &["no [level] section", "tag = \"...\""],
+        );
+        let text = format!("{EXAMPLE}\n[estimator]\ngate = 9\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "[estimator]",
+            "[estimator] level_sigma",
+            &["missing (required)", "unit = \"mm\""],
+        );
+        // A section that is not a table.
+        let text = format!("estimator = true\n{EXAMPLE}");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "estimator = true",
+            "estimator",
+            &["expected a table [estimator], got a boolean"],
+        );
+    }
+
+    #[test]
+    fn estimator_bias_meters() {
+        // Unknown name: the inlets and measured outlets are listed.
+        let text = with_estimator("bias_meters = [\"caustic pump\", \"caustic pmup\"]\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "bias_meters",
+            "[estimator] bias_meters[1]",
+            &[
+                "unknown inlet or measured outlet \"caustic pmup\"; inlets: caustic pump, \
+               ester pump; measured outlets: product",
+            ],
+        );
+        // A constant flow has no meter.
+        let text = with_estimator("bias_meters = [\"ester pump\"]\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "bias_meters",
+            "[estimator] bias_meters[0]",
+            &["inlet \"ester pump\" has a constant flow"],
+        );
+        let text = edit(
+            &with_estimator("bias_meters = [\"product\"]\n"),
+            "flow = { tag = \"FI-201\", unit = \"m3/h\" }",
+            "flow = { value = 2, unit = \"m3/h\" }",
+        );
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "bias_meters",
+            "[estimator] bias_meters[0]",
+            &["outlet \"product\" has a constant flow"],
+        );
+        // An orifice is not metered.
+        let text = with_estimator("bias_meters = [\"drain\"]\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "bias_meters",
+            "[estimator] bias_meters[0]",
+            &[
+                "outlet \"drain\" is not metered",
+                "measured outlets: product",
+            ],
+        );
+        // Too many: at most 4, at the array.
+        let text = with_estimator(
+            "bias_meters = [\n  \"a\",\n  \"b\",\n  \"c\",\n  \"d\",\n  \"e\",\n]\n",
+        );
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "bias_meters",
+            "[estimator] bias_meters",
+            &["too many bias meters: 5, at most 4"],
+        );
+        // Listed twice; on its own line in a multi-line array.
+        let text = with_estimator(
+            "bias_meters = [\n  \"product\",\n  \"caustic pump\",\n  \"product\",\n]\n",
+        );
+        let e = err(&text);
+        assert_eq!(e.key, "[estimator] bias_meters[2]", "{e}");
+        assert_eq!(e.line, Some(text.lines().count() - 1), "{e}");
+        assert!(e.message.contains("\"product\" is listed twice"), "{e}");
+        // Not an array, not a string.
+        let text = with_estimator("bias_meters = \"product\"\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "bias_meters",
+            "[estimator] bias_meters",
+            &["expected an array of inlet or measured-outlet names, e.g. [\"caustic pump\"], got a string"],
+        );
+        let text = with_estimator("bias_meters = [\"product\", 2]\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "bias_meters",
+            "[estimator] bias_meters[1]",
+            &["got an integer"],
+        );
+        // An inlet and an outlet of the same name: ambiguous.
+        let text = edit(
+            &with_estimator("bias_meters = [\"product\"]\n"),
+            "name = \"ester pump\"",
+            "name = \"product\"",
+        );
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "bias_meters",
+            "[estimator] bias_meters[0]",
+            &["names both an inlet and an outlet"],
+        );
+        // Four are fine; an empty list is no bias estimation.
+        let text = edit(
+            &with_estimator("bias_meters = [\"product\", \"caustic pump\", \"ester pump\", \"tank out\"]\n"),
+            "flow = { value = 30, unit = \"L/min\" }",
+            "flow = { tag = \"FI-102\", unit = \"L/min\" }",
+        )
+        .replace(
+            "[temperature]",
+            "[[outlet]]\nname = \"tank out\"\nkind = \"measured\"\nflow = { tag = \"FI-202\", unit = \"L/s\" }\n\n[temperature]",
+        );
+        let meters = estimator(&text).bias_meters;
+        let got: Vec<(&str, bool, usize)> = meters
+            .iter()
+            .map(|m| (m.name.as_str(), m.outlet, m.index))
+            .collect();
+        assert_eq!(
+            got,
+            [
+                ("product", true, 0),
+                ("caustic pump", false, 0),
+                ("ester pump", false, 1),
+                ("tank out", true, 2)
+            ]
+        );
+        assert!(estimator(&with_estimator("bias_meters = []\n"))
+            .bias_meters
+            .is_empty());
+    }
+
+    #[test]
+    fn estimator_sigmas_must_not_be_negative() {
+        for (line, key, part) in [
+            (
+                "holdup_drift = { value = -1, unit = \"L\" }",
+                "[estimator] holdup_drift",
+                "must not be negative, got -1 L (= -0.001 m3)",
+            ),
+            (
+                "initial_volume_sigma = { value = -0.5, unit = \"m3\" }",
+                "[estimator] initial_volume_sigma",
+                "must not be negative, got -0.5 m3",
+            ),
+            (
+                "concentration_drift = { value = -1, unit = \"mol/m3\" }",
+                "[estimator] concentration_drift",
+                "must not be negative",
+            ),
+            (
+                "initial_concentration_sigma = { EtOAc = { value = -1, unit = \"mol/m3\" } }",
+                "[estimator] initial_concentration_sigma.EtOAc",
+                "must not be negative",
+            ),
+            (
+                "bias_sigma = -0.05",
+                "[estimator] bias_sigma",
+                "must not be negative, got -0.05",
+            ),
+            (
+                "bias_drift = -1e-3",
+                "[estimator] bias_drift",
+                "must not be negative, got -0.001",
+            ),
+            (
+                "flow_sigma = -0.01",
+                "[estimator] flow_sigma",
+                "must not be negative",
+            ),
+            ("bias_sigma = nan", "[estimator] bias_sigma", "finite"),
+            (
+                "flow_sigma = \"1 %\"",
+                "[estimator] flow_sigma",
+                "expected a number, got a string",
+            ),
+        ] {
+            let text = with_estimator(&format!("{line}\n"));
+            let e = err(&text);
+            let needle = line.split(' ').next().unwrap_or(line);
+            check(&e, &text, needle, key, &[part]);
+        }
+        // Zero is allowed for these (no drift, exact start, noiseless meters).
+        let e = estimator(&with_estimator(
+            "holdup_drift = { value = 0, unit = \"L\" }\nbias_sigma = 0\nbias_drift = 0\nflow_sigma = 0\n",
+        ));
+        assert_eq!(
+            (e.holdup_drift, e.bias_sigma, e.bias_drift, e.flow_sigma),
+            (0.0, 0.0, 0.0, 0.0)
+        );
+        // The level noise must be positive.
+        for bad in ["-3", "0"] {
+            let text = edit(
+                &with_estimator(""),
+                "level_sigma = { value = 3,",
+                &format!("level_sigma = {{ value = {bad},"),
+            );
+            let e = err(&text);
+            check(
+                &e,
+                &text,
+                "level_sigma",
+                "[estimator] level_sigma",
+                &["must be positive", "mm (= "],
+            );
+        }
+    }
+
+    #[test]
+    fn estimator_positive_numbers_and_cusum_order() {
+        for (line, key) in [
+            ("gate = 0", "[estimator] gate"),
+            ("gate = -9.0", "[estimator] gate"),
+            ("lab_sigma = 0.0", "[estimator] lab_sigma"),
+            ("cusum_k = 0", "[estimator] cusum_k"),
+            ("cusum_h = -5", "[estimator] cusum_h"),
+        ] {
+            let text = with_estimator(&format!("{line}\n"));
+            let e = err(&text);
+            let needle = line.split(' ').next().unwrap_or(line);
+            check(&e, &text, needle, key, &["must be positive, got "]);
+        }
+        // Both given: the error is at cusum_h.
+        let text = with_estimator("cusum_k = 2\ncusum_h = 2\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "cusum_h",
+            "[estimator] cusum_h",
+            &["must be greater than cusum_k (2), got 2"],
+        );
+        let text = with_estimator("cusum_h = 1.5\ncusum_k = 3\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "cusum_h",
+            "[estimator] cusum_h",
+            &["must be greater than cusum_k (3), got 1.5"],
+        );
+        // Only one given: it is compared with the other's default.
+        let text = with_estimator("cusum_h = 0.4\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "cusum_h",
+            "[estimator] cusum_h",
+            &["must be greater than cusum_k (default 0.5), got 0.4"],
+        );
+        let text = with_estimator("cusum_k = 6\n");
+        let e = err(&text);
+        check(
+            &e,
+            &text,
+            "cusum_k",
+            "[estimator] cusum_k",
+            &["must be less than cusum_h (default 5), got 6"],
+        );
+        let e = estimator(&with_estimator("cusum_k = 0.25\ncusum_h = 0.3\n"));
+        assert_eq!((e.cusum_k, e.cusum_h), (0.25, 0.3));
+    }
+
+    #[test]
+    fn estimator_durations() {
+        for (line, key, part) in [
+            (
+                "lab_max_age = \"6 hours\"",
+                "[estimator] lab_max_age",
+                "invalid duration \"6 hours\": unknown unit; write a number and one of ms, s, min, h",
+            ),
+            (
+                "closure_window = \"30\"",
+                "[estimator] closure_window",
+                "no unit",
+            ),
+            (
+                "lab_max_age = 6",
+                "[estimator] lab_max_age",
+                "expected a string, got an integer",
+            ),
+            (
+                "lab_max_age = \"0 h\"",
+                "[estimator] lab_max_age",
+                "must be longer than 0 ms",
+            ),
+            // The EXAMPLE ticks once a second.
+            (
+                "closure_window = \"1999 ms\"",
+                "[estimator] closure_window",
+                "must be at least 2 ticks (2000 ms with tick 1000 ms), got 1999 ms",
+            ),
+        ] {
+            let text = with_estimator(&format!("{line}\n"));
+            let e = err(&text);
+            let needle = line.split(' ').next().unwrap_or(line);
+            check(&e, &text, needle, key, &[part]);
+        }
+        let e = estimator(&with_estimator(
+            "closure_window = \"2 s\"\nlab_max_age = \"90 min\"\n",
+        ));
+        assert_eq!((e.closure_window_ms, e.lab_max_age_ms), (2_000, 5_400_000));
+    }
+
+    #[test]
+    fn no_panic_on_a_mangled_estimator_section() {
+        // Every prefix of the section after the example, and the section
+        // with each line dropped: an error or a plant, never a panic.
+        let full = format!("{EXAMPLE}{ESTIMATOR}");
+        for (i, _) in full.char_indices().filter(|(i, _)| *i >= EXAMPLE.len()) {
+            let _ = parse(&full[..i], path());
+        }
+        let lines: Vec<&str> = ESTIMATOR.lines().collect();
+        for skip in 0..lines.len() {
+            let kept: Vec<&str> = lines
+                .iter()
+                .enumerate()
+                .filter(|(i, _)| *i != skip)
+                .map(|(_, l)| *l)
+                .collect();
+            let text = format!("{EXAMPLE}{}\n", kept.join("\n"));
+            if let Err(e) = parse(&text, path()) {
+                assert!(!e.message.is_empty());
+            }
+        }
     }
 }

@@ -5,7 +5,8 @@
 //! stirred vessel with a dished bottom where caustic soda and ethyl acetate
 //! (0.1 mol/L each) saponify to sodium acetate. Two metered feed pumps, a
 //! metered product outlet on level control, a jacket temperature and a level
-//! transmitter. Over 12 h the ester pump sags to 80 % (3 h to 7 h) and the
+//! transmitter; the caustic meter reads 3 % high. Over 12 h the ester pump
+//! sags to 80 % (3 h to 7 h) and the
 //! jacket warms the batch from 25 °C to 35 °C (4 h to 6 h). The historian
 //! stores every second with realistic noise, loses the caustic meter for two
 //! minutes at 5 h and has a fifteen-minute hole at 8 h. The lab analyses a grab
@@ -101,6 +102,17 @@ temperature = { value = 25, unit = "degC" }
 format = "wide"
 time = "iso8601"
 max_age = "10 min"
+
+# Correct the balances with the level transmitter and the lab, and track the
+# caustic meter, which the instrument shop suspects of reading high.
+[estimator]
+level_sigma = { value = 2, unit = "mm" }
+holdup_drift = { value = 5, unit = "L" }
+concentration_drift = { value = 0.2, unit = "mol/m3" }
+bias_meters = ["caustic pump P-11"]
+bias_sigma = 0.05
+bias_drift = 0.002
+lab_sigma = 0.02
 "#;
 
 /// Start of the demo log: 2026-03-02T06:00:00+01:00 (ms since the epoch).
@@ -203,10 +215,11 @@ pub fn generate(dir: &Path) -> std::io::Result<DemoFiles> {
         let in_gap = (8 * hour..8 * hour + 15 * 60_000).contains(&t);
         if !in_gap {
             let meter = |q: f64, n: &mut Noise| q * 3600.0 * (1.0 + 0.01 * n.normal());
+            // The caustic meter reads 3 % high.
             let fi101 = if (5 * hour..5 * hour + 120_000).contains(&t) {
                 "NaN".to_string()
             } else {
-                format!("{:.4}", meter(u.inlet_flows[0], &mut noise))
+                format!("{:.4}", 1.03 * meter(u.inlet_flows[0], &mut noise))
             };
             let _ = writeln!(
                 log,

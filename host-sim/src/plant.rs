@@ -199,6 +199,52 @@ pub struct Initial {
     pub temperature: Option<f64>,
 }
 
+/// A meter whose relative bias the estimator tracks.
+#[derive(Clone, Debug, PartialEq)]
+pub struct BiasMeter {
+    /// Inlet or outlet name, as in the config.
+    pub name: String,
+    /// `true` for an outlet meter, `false` for an inlet meter.
+    pub outlet: bool,
+    /// Index into the plant's inlets or outlets.
+    pub index: usize,
+}
+
+/// Estimator settings (`[estimator]`), SI.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Estimator {
+    /// Level transmitter noise, 1σ, m.
+    pub level_sigma: f64,
+    /// Unexplained holdup change over one hour, 1σ, m³ (random walk).
+    pub holdup_drift: f64,
+    /// Unexplained concentration change over one hour, 1σ, mol/m³, per species.
+    pub concentration_drift: Vec<f64>,
+    /// Initial holdup uncertainty, 1σ, m³.
+    pub initial_volume_sigma: f64,
+    /// Initial concentration uncertainty, 1σ, mol/m³, per species.
+    pub initial_concentration_sigma: Vec<f64>,
+    /// Meters whose relative bias is estimated (at most 4).
+    pub bias_meters: Vec<BiasMeter>,
+    /// Initial bias uncertainty, 1σ, relative.
+    pub bias_sigma: f64,
+    /// Bias drift over one hour, 1σ, relative (random walk).
+    pub bias_drift: f64,
+    /// Innovation gate, chi-square quantile for 1 degree of freedom.
+    pub gate: f64,
+    /// Relative 1σ of a lab analysis.
+    pub lab_sigma: f64,
+    /// A drawn sample whose result has not come within this age is dropped, ms.
+    pub lab_max_age_ms: u64,
+    /// Relative 1σ of the flow meters' noise (for the balance-closure check).
+    pub flow_sigma: f64,
+    /// Window of the balance-closure residual, ms.
+    pub closure_window_ms: u64,
+    /// CUSUM reference value k, in standard deviations of the residual.
+    pub cusum_k: f64,
+    /// CUSUM decision interval h, in standard deviations of the residual.
+    pub cusum_h: f64,
+}
+
 /// A checked plant configuration.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Plant {
@@ -234,6 +280,8 @@ pub struct Plant {
     pub tags: Vec<TagOptions>,
     /// Log options.
     pub log: LogOptions,
+    /// Estimator settings; `None`: open loop only.
+    pub estimator: Option<Estimator>,
 }
 
 /// Capacities the host replay is compiled for.

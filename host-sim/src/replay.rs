@@ -16,6 +16,7 @@ use std::time::Instant;
 use holdup_kernel::{Geometry, Inputs, Scalar, StatusFlags};
 use serde_json::json;
 
+use crate::correct::Corrector;
 use crate::demo::CAUTION;
 use crate::lab::{self, Comparison, LabError, LabResult};
 use crate::log::{LogError, LogReader, SampleState};
@@ -120,17 +121,19 @@ pub struct Outcome {
 /// Run a replay.
 pub fn run(req: &Request<'_>) -> Result<Outcome, ReplayError> {
     let n = req.plant.species.len();
+    // The observer state is padded to four bias slots (D = N + 5), so one
+    // instance per species count and scalar type covers every configuration.
     macro_rules! by_n {
         ($s:ty) => {
             match n {
-                1 => run_typed::<$s, 1>(req),
-                2 => run_typed::<$s, 2>(req),
-                3 => run_typed::<$s, 3>(req),
-                4 => run_typed::<$s, 4>(req),
-                5 => run_typed::<$s, 5>(req),
-                6 => run_typed::<$s, 6>(req),
-                7 => run_typed::<$s, 7>(req),
-                _ => run_typed::<$s, 8>(req),
+                1 => run_typed::<$s, 1, 6>(req),
+                2 => run_typed::<$s, 2, 7>(req),
+                3 => run_typed::<$s, 3, 8>(req),
+                4 => run_typed::<$s, 4, 9>(req),
+                5 => run_typed::<$s, 5, 10>(req),
+                6 => run_typed::<$s, 6, 11>(req),
+                7 => run_typed::<$s, 7, 12>(req),
+                _ => run_typed::<$s, 8, 13>(req),
             }
         };
     }
@@ -176,7 +179,118 @@ struct Tally {
     flags: [u64; 16],
 }
 
-fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, ReplayError> {
+/// The signals of the plant resolved against the reader.
+struct Sources {
+    inlet_flow: Vec<Source>,
+    feeds: Vec<Vec<Source>>,
+    outlet_flow: Vec<Option<Source>>,
+    temperature: Source,
+    level: Option<Source>,
+}
+
+impl Sources {
+    fn new(plant: &Plant) -> Self {
+        Self {
+            inlet_flow: plant
+                .inlets
+                .iter()
+                .map(|i| Source::new(plant, &i.flow))
+                .collect(),
+            feeds: plant
+                .inlets
+                .iter()
+                .map(|i| i.feed.iter().map(|s| Source::new(plant, s)).collect())
+                .collect(),
+            outlet_flow: plant
+                .outlets
+                .iter()
+                .map(|o| match &o.kind {
+                    OutletKind::Measured(s) => Some(Source::new(plant, s)),
+                    _ => None,
+                })
+                .collect(),
+            temperature: Source::new(plant, &plant.temperature),
+            level: plant.level.as_ref().map(|l| Source::new(plant, l)),
+        }
+    }
+
+    /// The kernel inputs held over the tick from the current samples, the
+    /// worst input quality, the flows in m³/h (for plots) and the measured
+    /// level (NaN when missing or stale).
+    fn inputs<S: Scalar, const N: usize>(
+        &self,
+        samples: &[crate::log::TagSample],
+    ) -> (Inputs<S, N, I, O>, &'static str, Vec<f64>, Option<f64>) {
+        let mut u: Inputs<S, N, I, O> = Inputs::quiescent(S::ONE);
+        let mut quality = "good";
+        let mut note = |state: SampleState| match state {
+            SampleState::Stale if quality == "good" => quality = "uncertain",
+            SampleState::Missing => quality = "bad",
+            _ => {}
+        };
+        // A missing value reaches the kernel as NaN: it is replaced and flagged there.
+        let si = |(x, st): (f64, SampleState)| {
+            if st == SampleState::Missing {
+                f64::NAN
+            } else {
+                x
+            }
+        };
+        let mut flows = Vec::new();
+        for (k, src) in self.inlet_flow.iter().enumerate() {
+            let r = src.read(samples);
+            note(r.1);
+            u.inlet_flows[k] = S::of(si(r));
+            flows.push(r.0 * 3600.0);
+            for (i, f) in self.feeds[k].iter().enumerate().take(N) {
+                let r = f.read(samples);
+                note(r.1);
+                u.feed[k][i] = S::of(si(r));
+            }
+        }
+        for (k, src) in self.outlet_flow.iter().enumerate() {
+            if let Some(src) = src {
+                let r = src.read(samples);
+                note(r.1);
+                u.outlet_flows[k] = S::of(si(r));
+                flows.push(r.0 * 3600.0);
+            }
+        }
+        let r = self.temperature.read(samples);
+        note(r.1);
+        u.temperature = S::of(si(r));
+        let level = self.level.as_ref().map(|l| {
+            let (z, st) = l.read(samples);
+            if st == SampleState::Missing || st == SampleState::Stale {
+                f64::NAN
+            } else {
+                z
+            }
+        });
+        (u, quality, flows, level)
+    }
+}
+
+fn kernel_err(plant: &Plant) -> impl Fn(holdup_kernel::Error) -> ReplayError + '_ {
+    move |e| ReplayError::Kernel {
+        path: plant.path.clone(),
+        message: e.message(),
+    }
+}
+
+fn agreement_json(a: &crate::lab::Agreement) -> serde_json::Value {
+    json!({
+        "n": a.n,
+        "bias_mol_m3": a.bias,
+        "rmse_mol_m3": a.rmse,
+        "max_abs_error_mol_m3": a.max_abs,
+        "max_error_at": a.max_at.map(iso),
+    })
+}
+
+fn run_typed<S: Scalar, const N: usize, const D: usize>(
+    req: &Request<'_>,
+) -> Result<Outcome, ReplayError> {
     let plant = req.plant;
     std::fs::create_dir_all(req.out_dir).map_err(io_err(req.out_dir))?;
     let labs: Vec<LabResult> = match req.lab {
@@ -188,27 +302,7 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
     let t0 = reader
         .first_time()?
         .ok_or_else(|| ReplayError::EmptyLog(req.log.to_path_buf()))?;
-
-    let inlet_flow: Vec<Source> = plant
-        .inlets
-        .iter()
-        .map(|i| Source::new(plant, &i.flow))
-        .collect();
-    let feeds: Vec<Vec<Source>> = plant
-        .inlets
-        .iter()
-        .map(|i| i.feed.iter().map(|s| Source::new(plant, s)).collect())
-        .collect();
-    let outlet_flow: Vec<Option<Source>> = plant
-        .outlets
-        .iter()
-        .map(|o| match &o.kind {
-            OutletKind::Measured(s) => Some(Source::new(plant, s)),
-            _ => None,
-        })
-        .collect();
-    let temperature = Source::new(plant, &plant.temperature);
-    let level = plant.level.as_ref().map(|l| Source::new(plant, l));
+    let sources = Sources::new(plant);
 
     // Initial temperature: configured, or the signal's first value.
     let t_init = match plant.initial.temperature {
@@ -217,7 +311,7 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
             let samples = reader
                 .sample(t0)?
                 .ok_or_else(|| ReplayError::EmptyLog(req.log.to_path_buf()))?;
-            let (t, _) = temperature.read(samples);
+            let (t, _) = sources.temperature.read(samples);
             if t.is_finite() && t > 0.0 {
                 t
             } else {
@@ -225,43 +319,70 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
             }
         }
     };
-    let mut ves: HostVessel<S, N> =
-        to_kernel::vessel(plant, t_init).map_err(|e| ReplayError::Kernel {
-            path: plant.path.clone(),
-            message: e.message(),
-        })?;
-    let geometry: Geometry<f64> =
-        Geometry::new(plant.shape.clone()).map_err(|e| ReplayError::Kernel {
-            path: plant.path.clone(),
-            message: e.message(),
-        })?;
+    let mut ves: HostVessel<S, N> = to_kernel::vessel(plant, t_init).map_err(kernel_err(plant))?;
+    let mut corr: Option<Corrector<S, N, D>> = match &plant.estimator {
+        Some(e) => Some(Corrector::new(plant, e, t_init, &labs).map_err(kernel_err(plant))?),
+        None => None,
+    };
+    let geometry: Geometry<f64> = Geometry::new(plant.shape.clone()).map_err(kernel_err(plant))?;
+    let n_species = plant.species.len();
 
     // Outputs.
     let est_path = req.out_dir.join("estimates.csv");
     let mut est = BufWriter::new(File::create(&est_path).map_err(io_err(&est_path))?);
-    let mut header = String::from("time,elapsed_h,holdup_m3,level_m");
-    if level.is_some() {
+    let mut header = String::from("time,elapsed_h,holdup_m3");
+    if corr.is_some() {
+        header.push_str(",holdup_sigma_m3");
+    }
+    header.push_str(",level_m");
+    if sources.level.is_some() {
         header.push_str(",measured_level_m");
     }
     for s in &plant.species {
-        header.push_str(&format!(",{}_mol_m3", csv_name(&s.name)));
+        let n = csv_name(&s.name);
+        header.push_str(&format!(",{n}_mol_m3"));
+        if corr.is_some() {
+            header.push_str(&format!(",{n}_sigma_mol_m3,{n}_open_loop_mol_m3"));
+        }
+    }
+    if let Some(c) = &corr {
+        for b in &c.bias_names {
+            let n = csv_name(b);
+            header.push_str(&format!(",bias_{n},bias_{n}_sigma"));
+        }
     }
     header.push_str(",flags,input_quality\n");
     est.write_all(header.as_bytes())
         .map_err(io_err(&est_path))?;
 
     let hours = |t: i64| (t - t0) as f64 / 3.6e6;
-    let mut fig_level = Panel::new("level [m]");
-    let mut s_level_est = Series::new("estimated level", Color::nth(0));
+    let corrected = corr.is_some();
+    let est_label = if corrected { "corrected" } else { "estimate" };
+    let mut s_level_est = Series::new(&format!("level, {est_label}"), Color::nth(0));
     let mut s_level_meas = Series::new("measured level", Color::nth(5));
-    let mut fig_holdup = Panel::new("holdup [m³]");
-    let mut s_hold_est = Series::new("estimated holdup", Color::nth(0));
+    let mut s_hold_est = Series::new(&format!("holdup, {est_label}"), Color::nth(0));
+    let mut s_hold_open = Series::new("holdup, open loop", Color::nth(1));
     let mut s_hold_meas = Series::new("holdup from measured level", Color::nth(5));
     let mut conc_series: Vec<Series> = plant
         .species
         .iter()
-        .map(|s| Series::new(&format!("{} estimate", s.name), Color::nth(0)))
+        .map(|s| Series::new(&format!("{} {est_label}", s.name), Color::nth(0)))
         .collect();
+    let mut open_series: Vec<Series> = plant
+        .species
+        .iter()
+        .map(|s| Series::new(&format!("{} open loop", s.name), Color::nth(1)))
+        .collect();
+    let mut bias_series: Vec<Series> = corr
+        .as_ref()
+        .map(|c| {
+            c.bias_names
+                .iter()
+                .enumerate()
+                .map(|(j, b)| Series::new(&format!("bias of {b}"), Color::nth(j + 2)))
+                .collect()
+        })
+        .unwrap_or_default();
     let mut flow_series: Vec<Series> = plant
         .inlets
         .iter()
@@ -278,8 +399,8 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
         .collect();
     let mut s_outflow = Series::new("total outflow (balance)", Color::nth(1));
 
-    let mut comparison = Comparison::new(plant.species.len());
-    let mut lab_iter = labs.iter().peekable();
+    let mut open_cmp = Comparison::new(n_species);
+    let mut lab_cursor = 0usize;
     let mut tally = Tally::default();
     let mut level_err = (0.0f64, 0.0f64, 0u64); // sum sq, max abs, n
 
@@ -297,98 +418,41 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
 
     let tick = i64::from(plant.tick_ms);
     let every = (req.output_every_ms as i64).max(tick);
-    let mut prev_conc: [f64; N] = [0.0; N];
-    let mut prev_t = t0;
     let mut ticks: u64 = 0;
     let mut t = t0;
     let mut row = String::new();
     while let Some(samples) = reader.sample(t)? {
-        // Inputs held over [t, t + tick).
-        let mut u: Inputs<S, N, I, O> = Inputs::quiescent(S::ONE);
-        let mut quality = "good";
-        // Worst state of the inputs used this tick (counts per tag are in the
-        // reader's statistics).
-        let mut note = |state: SampleState| match state {
-            SampleState::Stale if quality == "good" => quality = "uncertain",
-            SampleState::Missing => quality = "bad",
-            _ => {}
-        };
-        let mut flows_now: Vec<f64> = Vec::with_capacity(flow_series.len());
-        for (k, src) in inlet_flow.iter().enumerate() {
-            let (q, st) = src.read(samples);
-            note(st);
-            u.inlet_flows[k] = S::of(if st == SampleState::Missing {
-                f64::NAN
-            } else {
-                q
-            });
-            flows_now.push(q * 3600.0);
-            for (i, f) in feeds[k].iter().enumerate().take(N) {
-                let (c, st) = f.read(samples);
-                note(st);
-                u.feed[k][i] = S::of(if st == SampleState::Missing {
-                    f64::NAN
-                } else {
-                    c
-                });
-            }
-        }
-        for (k, src) in outlet_flow.iter().enumerate() {
-            if let Some(src) = src {
-                let (q, st) = src.read(samples);
-                note(st);
-                u.outlet_flows[k] = S::of(if st == SampleState::Missing {
-                    f64::NAN
-                } else {
-                    q
-                });
-                flows_now.push(q * 3600.0);
-            }
-        }
-        let (temp, st) = temperature.read(samples);
-        note(st);
-        u.temperature = S::of(if st == SampleState::Missing {
-            f64::NAN
-        } else {
-            temp
-        });
-        let measured_level = level.as_ref().map(|l| {
-            let (z, st) = l.read(samples);
-            if st == SampleState::Missing || st == SampleState::Stale {
-                f64::NAN
-            } else {
-                z
-            }
-        });
+        let (u, quality, flows_now, measured_level) = sources.inputs::<S, N>(samples);
 
-        // State at t (before the tick): estimates row, plots, lab.
-        let conc = ves.concentrations().map(|c| c.to_f64());
-        let v = ves.volume().to_f64();
-        let z = ves.level().to_f64();
-        while let Some(l) = lab_iter.peek() {
+        // Open loop at t; lab samples drawn up to t compared with it.
+        let open_conc = ves.concentrations().map(|c| c.to_f64());
+        while let Some(l) = labs.get(lab_cursor) {
             if l.sample_time > t {
                 break;
             }
             if l.sample_time < t0 {
-                comparison.outside_span += 1;
+                open_cmp.outside_span += 1;
             } else {
-                // Linear between the states at prev_t and t.
-                let w = if t > prev_t {
-                    (l.sample_time - prev_t) as f64 / (t - prev_t) as f64
-                } else {
-                    1.0
-                };
-                let e = prev_conc[l.species] + w * (conc[l.species] - prev_conc[l.species]);
-                comparison.add(l.species, e, l.value, l.sample_time);
+                open_cmp.add(l.species, open_conc[l.species], l.value, l.sample_time);
             }
-            lab_iter.next();
+            lab_cursor += 1;
         }
-        prev_conc = conc;
-        prev_t = t;
+        // Corrected: the level now, lab draws and results up to now.
+        let cstate = corr.as_mut().map(|c| {
+            c.measure(t, measured_level, &labs);
+            c.state()
+        });
+        let (v, z, conc) = match (&cstate, &corr) {
+            (Some(cs), Some(c)) => (cs.volume.0, c.level(), cs.conc),
+            _ => (ves.volume().to_f64(), ves.level().to_f64(), open_conc),
+        };
 
         let x = hours(t);
         s_level_est.push(x, z);
         s_hold_est.push(x, v);
+        if corrected {
+            s_hold_open.push(x, ves.volume().to_f64());
+        }
         if let Some(m) = measured_level {
             s_level_meas.push(x, m);
             s_hold_meas.push(
@@ -400,7 +464,7 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
                 },
             );
             if m.is_finite() {
-                let d = z - m;
+                let d = ves.level().to_f64() - m;
                 level_err.0 += d * d;
                 level_err.1 = level_err.1.max(d.abs());
                 level_err.2 += 1;
@@ -409,11 +473,24 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
         for (s, c) in conc_series.iter_mut().zip(conc.iter()) {
             s.push(x, *c);
         }
+        if corrected {
+            for (s, c) in open_series.iter_mut().zip(open_conc.iter()) {
+                s.push(x, *c);
+            }
+        }
+        if let Some(cs) = &cstate {
+            for (s, b) in bias_series.iter_mut().zip(cs.bias.iter()) {
+                s.push(x, 100.0 * b.0);
+            }
+        }
         for (s, q) in flow_series.iter_mut().zip(flows_now.iter()) {
             s.push(x, *q);
         }
 
         let report = ves.step(&u);
+        if let Some(c) = corr.as_mut() {
+            c.tick(&u);
+        }
         ticks += 1;
         s_outflow.push(
             x,
@@ -426,7 +503,11 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
         }
         if (t - t0) % every == 0 {
             row.clear();
-            row.push_str(&format!("{},{:.6},{:.6e},{:.6}", iso(t), x, v, z));
+            row.push_str(&format!("{},{:.6},{:.6e}", iso(t), x, v));
+            if let Some(cs) = &cstate {
+                row.push_str(&format!(",{:.3e}", cs.volume.1));
+            }
+            row.push_str(&format!(",{z:.6}"));
             if let Some(m) = measured_level {
                 if m.is_finite() {
                     row.push_str(&format!(",{m:.6}"));
@@ -434,8 +515,16 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
                     row.push(',');
                 }
             }
-            for c in conc.iter().take(plant.species.len()) {
-                row.push_str(&format!(",{c:.6e}"));
+            for i in 0..n_species.min(N) {
+                row.push_str(&format!(",{:.6e}", conc[i]));
+                if let Some(cs) = &cstate {
+                    row.push_str(&format!(",{:.3e},{:.6e}", cs.conc_sigma[i], open_conc[i]));
+                }
+            }
+            if let Some(cs) = &cstate {
+                for b in &cs.bias {
+                    row.push_str(&format!(",{:.5},{:.5}", b.0, b.1));
+                }
             }
             let names: Vec<&str> = report.flags.names().collect();
             row.push_str(&format!(",{},{}\n", names.join("|"), quality));
@@ -452,9 +541,8 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
     if let Some(b) = bar {
         b.finish_and_clear();
     }
-    // Final row at the end time.
     est.flush().map_err(io_err(&est_path))?;
-    comparison.outside_span += lab_iter.count();
+    open_cmp.outside_span += labs.len().saturating_sub(lab_cursor);
     let t_end = t;
     let wall = started.elapsed().as_secs_f64();
 
@@ -471,16 +559,19 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
         .collect();
     let x_label = format!("time since {} [h]", iso(t0));
     let footer = CAUTION.to_string();
-    // Measured first, so the estimate is drawn on top of the noisier trace.
-    if level.is_some() {
+    let mut fig_holdup = Panel::new("holdup [m³]");
+    let mut fig_level = Panel::new("level [m]");
+    // Measured first, so the estimates are drawn on top of the noisier trace.
+    if sources.level.is_some() {
         fig_level.series.push(s_level_meas);
-    }
-    fig_level.series.push(s_level_est);
-    fig_level.bands = bands.clone();
-    if level.is_some() {
         fig_holdup.series.push(s_hold_meas);
     }
+    if corrected {
+        fig_holdup.series.push(s_hold_open);
+    }
     fig_holdup.series.push(s_hold_est);
+    fig_level.series.push(s_level_est);
+    fig_level.bands = bands.clone();
     write_fig(
         req.out_dir,
         "holdup.svg",
@@ -492,11 +583,15 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
         },
     )?;
     let mut conc_panels = Vec::new();
+    let mut open_iter = open_series.into_iter();
     for (i, s) in conc_series.into_iter().enumerate() {
         let mut p = Panel::new(&format!("{} [mol/m³]", plant.species[i].name));
         let mut m = Markers::new("lab result", Color::nth(6));
         for l in labs.iter().filter(|l| l.species == i) {
             m.push(hours(l.sample_time), l.value);
+        }
+        if let Some(o) = open_iter.next().filter(|_| corrected) {
+            p.series.push(o);
         }
         p.series.push(s);
         p.markers.push(m);
@@ -531,14 +626,21 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
     if computed || tally.flags[2] > 0 {
         flows.series.push(s_outflow);
     }
-    flows.bands = bands;
+    flows.bands = bands.clone();
+    let mut flow_panels = vec![flows];
+    if !bias_series.is_empty() {
+        let mut p = Panel::new("estimated meter bias [%]");
+        p.series = bias_series;
+        p.bands = bands;
+        flow_panels.push(p);
+    }
     write_fig(
         req.out_dir,
         "flows.svg",
         Figure {
             title: format!("{}: flows", plant.name),
             x_label,
-            panels: vec![flows],
+            panels: flow_panels,
             footer,
         },
     )?;
@@ -561,28 +663,58 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
         .filter(|(i, _)| tally.flags[*i] > 0)
         .map(|(i, n)| (n.to_string(), json!(tally.flags[i])))
         .collect();
-    let agreements = comparison.results();
+    let open_agree = open_cmp.results();
+    let corr_agree = corr.as_ref().map(|c| c.comparison.results());
     let lab_json: Vec<serde_json::Value> = plant
         .species
         .iter()
-        .zip(agreements.iter())
-        .map(|(s, a)| {
-            json!({
-                "species": s.name,
-                "n": a.n,
-                "bias_mol_m3": a.bias,
-                "rmse_mol_m3": a.rmse,
-                "max_abs_error_mol_m3": a.max_abs,
-                "max_error_at": a.max_at.map(iso),
-            })
+        .enumerate()
+        .map(|(i, s)| {
+            let mut v = json!({ "species": s.name, "open_loop": agreement_json(&open_agree[i]) });
+            if let Some(c) = &corr_agree {
+                v["corrected"] = agreement_json(&c[i]);
+            }
+            v
         })
         .collect();
-    let final_conc: serde_json::Map<String, serde_json::Value> = plant
-        .species
-        .iter()
-        .zip(ves.concentrations().iter())
-        .map(|(s, c)| (s.name.clone(), json!(c.to_f64())))
-        .collect();
+    let final_state = match &corr {
+        Some(c) => {
+            let cs = c.state();
+            json!({
+                "holdup_m3": cs.volume.0,
+                "holdup_sigma_m3": cs.volume.1,
+                "level_m": c.level(),
+                "concentrations_mol_m3": plant.species.iter().zip(cs.conc.iter())
+                    .map(|(s, x)| (s.name.clone(), json!(x))).collect::<serde_json::Map<_, _>>(),
+                "concentration_sigmas_mol_m3": plant.species.iter().zip(cs.conc_sigma.iter())
+                    .map(|(s, x)| (s.name.clone(), json!(x))).collect::<serde_json::Map<_, _>>(),
+                "meter_bias": c.bias_names.iter().zip(cs.bias.iter())
+                    .map(|(n, b)| (n.clone(), json!({"relative": b.0, "sigma": b.1}))).collect::<serde_json::Map<_, _>>(),
+            })
+        }
+        None => json!({
+            "holdup_m3": ves.volume().to_f64(),
+            "level_m": ves.level().to_f64(),
+            "concentrations_mol_m3": plant.species.iter().zip(ves.concentrations().iter())
+                .map(|(s, x)| (s.name.clone(), json!(x.to_f64()))).collect::<serde_json::Map<_, _>>(),
+        }),
+    };
+    let estimator_json = corr.as_ref().map(|c| {
+        let k = c.counters();
+        json!({
+            "level_accepted": k.level_accepted,
+            "level_rejected": k.level_rejected,
+            "composition_accepted": k.composition_accepted,
+            "composition_rejected": k.composition_rejected,
+            "skipped": k.skipped,
+            "lab_expired": k.lab_expired,
+            "covariance_guarded": k.covariance_guarded,
+            "lab_fused": c.tally.fused,
+            "lab_rejected_by_gate": c.tally.rejected,
+            "lab_not_drawn": c.tally.not_drawn,
+            "lab_result_without_pending_sample": c.tally.not_pending,
+        })
+    });
     let level_json = if level_err.2 > 0 {
         json!({
             "rmse_m": (level_err.0 / level_err.2 as f64).sqrt(),
@@ -606,14 +738,11 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
         "wall_seconds": wall,
         "log_stats": stats.to_json(),
         "kernel_flags_ticks": flags_json,
-        "estimated_vs_measured_level": level_json,
+        "open_loop_level_vs_measured": level_json,
+        "estimator": estimator_json,
         "lab_comparison": lab_json,
-        "lab_outside_replay": comparison.outside_span,
-        "final": {
-            "holdup_m3": ves.volume().to_f64(),
-            "level_m": ves.level().to_f64(),
-            "concentrations_mol_m3": final_conc,
-        },
+        "lab_outside_replay": open_cmp.outside_span,
+        "final": final_state,
         "caution": CAUTION,
     });
     let json_path = req.out_dir.join("summary.json");
@@ -625,7 +754,7 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
 
     let mut text = String::new();
     text.push_str(&format!(
-        "Replay of {} ({}, {:?}, tick {} ms)\n",
+        "Replay of {} ({}, {:?}, tick {} ms{})\n",
         plant.name,
         if plant.scalar == ScalarKind::F32 {
             "f32"
@@ -633,7 +762,12 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
             "f64"
         },
         plant.method,
-        plant.tick_ms
+        plant.tick_ms,
+        if corrected {
+            ", corrected by level and lab"
+        } else {
+            ", open loop"
+        }
     ));
     text.push_str(&format!(
         "  span {} .. {} ({:.2} h, {} ticks, {:.2} s wall, {:.0} ticks/s)\n",
@@ -658,28 +792,55 @@ fn run_typed<S: Scalar, const N: usize>(req: &Request<'_>) -> Result<Outcome, Re
     }
     if level_err.2 > 0 {
         text.push_str(&format!(
-            "Estimated vs measured level: RMSE {:.4} m, max {:.4} m over {} ticks\n",
+            "Open-loop vs measured level: RMSE {:.4} m, max {:.4} m over {} ticks\n",
             (level_err.0 / level_err.2 as f64).sqrt(),
             level_err.1,
             level_err.2
         ));
     }
-    if req.lab.is_some() {
-        text.push_str("Lab comparison (estimate − lab, mol/m³):\n");
+    if let Some(c) = &corr {
+        let k = c.counters();
         text.push_str(&format!(
-            "  {:<16} {:>4} {:>12} {:>12} {:>12}\n",
-            "species", "n", "bias", "RMSE", "max |err|"
+            "Estimator: {} level values fused, {} rejected by the gate; lab: {} fused, {} rejected, {} not drawn, {} without pending sample, {} expired\n",
+            k.level_accepted,
+            k.level_rejected,
+            c.tally.fused,
+            c.tally.rejected,
+            c.tally.not_drawn,
+            c.tally.not_pending,
+            k.lab_expired
         ));
-        for (s, a) in plant.species.iter().zip(agreements.iter()) {
+        let cs = c.state();
+        for (n, b) in c.bias_names.iter().zip(cs.bias.iter()) {
             text.push_str(&format!(
-                "  {:<16} {:>4} {:>12.4} {:>12.4} {:>12.4}\n",
-                s.name, a.n, a.bias, a.rmse, a.max_abs
+                "  meter bias of {n}: {:+.2} % ± {:.2} %\n",
+                100.0 * b.0,
+                100.0 * b.1
             ));
         }
-        if comparison.outside_span > 0 {
+    }
+    if req.lab.is_some() {
+        text.push_str("Lab comparison at sample times (estimate − lab, mol/m³):\n");
+        text.push_str(&format!(
+            "  {:<16} {:<10} {:>4} {:>12} {:>12} {:>12}\n",
+            "species", "estimate", "n", "bias", "RMSE", "max |err|"
+        ));
+        for (i, s) in plant.species.iter().enumerate() {
+            let mut rows = vec![("open loop", &open_agree[i])];
+            if let Some(c) = &corr_agree {
+                rows.push(("corrected", &c[i]));
+            }
+            for (what, a) in rows {
+                text.push_str(&format!(
+                    "  {:<16} {:<10} {:>4} {:>12.4} {:>12.4} {:>12.4}\n",
+                    s.name, what, a.n, a.bias, a.rmse, a.max_abs
+                ));
+            }
+        }
+        if open_cmp.outside_span > 0 {
             text.push_str(&format!(
                 "  {} lab results fall outside the replayed span (not compared)\n",
-                comparison.outside_span
+                open_cmp.outside_span
             ));
         }
     }

@@ -86,6 +86,8 @@ pub enum Error {
     /// A signal's stuck detection has a zero flat duration or a negative
     /// tolerance.
     SignalStuck,
+    /// A probability is not strictly between 0 and 1.
+    ConfigProbability,
 }
 
 impl Error {
@@ -138,6 +140,7 @@ impl Error {
                 "signal valid range must have max > min (and max >= 0 when negatives are clamped)"
             }
             Error::SignalRate => "signal maximum rate of change must be positive",
+            Error::ConfigProbability => "probability must be strictly between 0 and 1",
             Error::SignalStuck => {
                 "stuck detection needs a flat duration of at least 1 ms and a non-negative tolerance"
             }

@@ -43,6 +43,7 @@
 //! | [`integrate`] | exact step, MPRK22, reference RK4 and Euler |
 //! | [`vessel`] | the state and its [`Vessel::step`] |
 //! | [`observer`] | extended Kalman filter: level, analyser and delayed lab corrections, meter biases |
+//! | [`diagnostics`] | balance-closure CUSUM, NIS model-mismatch test, NAMUR NE107 status and output qualities |
 //! | [`status`] | status flags and what a tick reports |
 //! | [`error`] | the one error enum |
 //! | [`reference`](mod@reference) | the reference configuration (benchmarks, firmware, demo) |
@@ -128,6 +129,7 @@
 #![forbid(unsafe_code)]
 #![deny(missing_docs)]
 
+pub mod diagnostics;
 pub mod error;
 pub mod geometry;
 pub mod integrate;

@@ -68,6 +68,11 @@ pub enum BiasTarget {
     Inlet(u8),
     /// Outlet meter, by index into [`Inputs::outlet_flows`] (a measured outlet).
     Outlet(u8),
+    /// A placeholder state with no effect on the balance, so that a host can
+    /// compile one state size for configurations with fewer biases. Its
+    /// variance only grows with the bias drift; it is not correlated with
+    /// anything.
+    Unused,
 }
 
 /// Raw observer configuration (SI units).
@@ -287,7 +292,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
             && spec.gate > S::ZERO
             && spec.biases.len() == D - 1 - N
             && spec.biases.iter().all(|b| match *b {
-                BiasTarget::Inlet(_) => true,
+                BiasTarget::Inlet(_) | BiasTarget::Unused => true,
                 BiasTarget::Outlet(k) => usize::from(k) < O,
             });
         if !ok {
@@ -398,6 +403,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
                         *q = clean(*q) * (S::ONE - beta);
                     }
                 }
+                BiasTarget::Unused => {}
             }
         }
         c
@@ -473,6 +479,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
                         }
                     }
                 }
+                BiasTarget::Unused => {}
             }
         }
         f

@@ -6,8 +6,8 @@
 //! time per iteration, i.e. per tick.
 
 use criterion::{criterion_group, criterion_main, Criterion};
-use holdup_kernel::reference;
 use heapless::Vec as HVec;
+use holdup_kernel::reference;
 use holdup_kernel::{BiasTarget, Inputs, Method, Observer, ObserverSpec, Outlet, Scalar};
 use holdup_sim::verify::{cylinder, vessel};
 use std::hint::black_box;
@@ -93,8 +93,14 @@ fn ticks(c: &mut Criterion) {
     exact_tick::<f32>(c, "3 species, no reaction (exact step), f32");
     exact_tick::<f64>(c, "3 species, no reaction (exact step), f64");
     reference_tick_rk4(c);
-    observer_tick::<f32>(c, "reference tick + observer (level update, 1 lab pending), f32");
-    observer_tick::<f64>(c, "reference tick + observer (level update, 1 lab pending), f64");
+    observer_tick::<f32>(
+        c,
+        "reference tick + observer (level update, 1 lab pending), f32",
+    );
+    observer_tick::<f64>(
+        c,
+        "reference tick + observer (level update, 1 lab pending), f64",
+    );
 }
 
 criterion_group!(benches, ticks);

@@ -17,7 +17,6 @@ mod tick;
 use cortex_m_rt::entry;
 use cortex_m_semihosting::debug;
 use holdup_kernel::reference::{self, ReferenceVessel};
-use holdup_kernel::StatusFlags;
 
 use meter::Meter;
 use report::Report;
@@ -55,14 +54,7 @@ impl Flops {
     }
     /// Calls into `libm` per tick.
     fn elementary(&self) -> f32 {
-        self.exp
-            + self.expm1
-            + self.ln
-            + self.ln1p
-            + self.powf
-            + self.sqrt
-            + self.cbrt
-            + self.acos
+        self.exp + self.expm1 + self.ln + self.ln1p + self.powf + self.sqrt + self.cbrt + self.acos
     }
 }
 
@@ -74,8 +66,9 @@ mod expected {
 }
 
 /// Relative tolerance of the `f32` estimates against the `f64` answers.
-/// The measured error is about 5e-7 (reference, f64 host kernel) and 1e-6
-/// (analytic); the gate leaves room for neither more than 10× of that.
+/// Measured: 4.2e-7 (reference, against the host kernel in f64) and 1.2e-7
+/// (analytic, against the closed form); the gate allows about 25× that, the
+/// same as the host's `verify` allows the exact step in `f32`.
 const TOLERANCE: f32 = 1e-5;
 
 /// The targets of the gateway issue.
@@ -162,9 +155,24 @@ fn run(out: &mut Report, cp: cortex_m::Peripherals) -> bool {
     pass &= analytic(out, &meter, &mut delay);
     pass &= reference_run(out, &meter, &mut delay);
 
+    #[cfg(not(feature = "board"))]
+    out.value(
+        "virtual time waited by the fixed-tick loop",
+        (delay.waited_ns / 1_000_000) as f32 / 1000.0,
+        "s",
+    );
+
     let state = core::mem::size_of::<ReferenceVessel<f32>>();
     let state_ok = state <= TARGET_STATE_BYTES;
-    out.count("target: kernel state <= bytes", TARGET_STATE_BYTES as u32, if state_ok { "met" } else { "MISSED" });
+    out.count(
+        "target kernel state <= 2048 bytes (gated)",
+        state as u32,
+        if state_ok {
+            "bytes: met"
+        } else {
+            "bytes: MISSED"
+        },
+    );
     pass &= state_ok;
 
     let touched = meter::lowest_touched(stack_bottom, sp.saturating_sub(256));
@@ -197,10 +205,14 @@ fn analytic(out: &mut Report, meter: &platform::Meter, delay: &mut platform::Del
                 .get((n / EXACT_EVERY) as usize - 1)
                 .copied()
                 .unwrap_or(f32::NAN);
-            let got = v.concentrations()[0];
+            let got = injected(v.concentrations()[0], n, EXACT_TICKS / 2);
             let e = rel_error(got, want);
             // NaN never compares: count it as a failure explicitly.
-            worst = if e.is_nan() { f32::INFINITY } else { worst.max(e) };
+            worst = if e.is_nan() {
+                f32::INFINITY
+            } else {
+                worst.max(e)
+            };
             points += 1;
         },
     );
@@ -212,15 +224,16 @@ fn analytic(out: &mut Report, meter: &platform::Meter, delay: &mut platform::Del
         TOLERANCE,
         ok,
     );
-    report_stats(out, "exact tick (1 species, 1 reaction)", &stats, &expected::FLOPS_EXACT);
+    report_stats(
+        out,
+        "exact tick (1 species, 1 reaction)",
+        &stats,
+        &expected::FLOPS_EXACT,
+    );
     ok
 }
 
-fn reference_run(
-    out: &mut Report,
-    meter: &platform::Meter,
-    delay: &mut platform::Delay,
-) -> bool {
+fn reference_run(out: &mut Report, meter: &platform::Meter, delay: &mut platform::Delay) -> bool {
     let Ok(mut v) = reference::vessel::<f32>() else {
         out.line("reference vessel: configuration rejected");
         return false;
@@ -242,21 +255,30 @@ fn reference_run(
         },
         |n, v| {
             let j = (n / REF_EVERY) as usize - 1;
-            let got = tick::state4(v);
-            let want = expected::REF_EXPECTED.get(j).copied().unwrap_or([f32::NAN; 4]);
-            let host = expected::REF_HOST_F32.get(j).copied().unwrap_or([f32::NAN; 4]);
+            let mut got = tick::state4(v);
+            got[1] = injected(got[1], n, REF_TICKS / 2);
+            let want = expected::REF_EXPECTED
+                .get(j)
+                .copied()
+                .unwrap_or([f32::NAN; 4]);
+            let host = expected::REF_HOST_F32
+                .get(j)
+                .copied()
+                .unwrap_or([f32::NAN; 4]);
             for ((g, w), h) in got.iter().zip(want).zip(host) {
                 let e = rel_error(*g, w);
-                worst = if e.is_nan() { f32::INFINITY } else { worst.max(e) };
+                worst = if e.is_nan() {
+                    f32::INFINITY
+                } else {
+                    worst.max(e)
+                };
                 worst_ulps = worst_ulps.max(ulps(*g, h));
             }
             points += 1;
         },
     );
-    let ok = points == REF_POINTS as u32
-        && worst <= TOLERANCE
-        && !stats.flags.contains(StatusFlags::NUMERIC_FAULT)
-        && stats.flags.is_empty();
+    // No status flag either: the scenario never clamps, faults or falls back.
+    let ok = points == REF_POINTS as u32 && worst <= TOLERANCE && stats.flags.is_empty();
     out.check(
         "reference (3 species, 2 reactions, MPRK22) vs host f64 kernel",
         points,
@@ -269,15 +291,36 @@ fn reference_run(
         worst_ulps,
         "ulp",
     );
-    report_stats(out, "open-loop reference tick", &stats, &expected::FLOPS_REFERENCE);
-    let unit = <platform::Meter as Meter>::UNIT;
-    let budget_ok = unit != "instructions" || stats.mean() <= TARGET_OPEN_LOOP as f32;
-    out.count(
-        "target: open-loop reference tick mean instructions <",
-        TARGET_OPEN_LOOP,
-        if budget_ok { "met" } else { "MISSED" },
+    report_stats(
+        out,
+        "open-loop reference tick",
+        &stats,
+        &expected::FLOPS_REFERENCE,
     );
+    let unit = <platform::Meter as Meter>::UNIT;
+    if unit == "instructions" {
+        // Reported, not gated: meeting it needs kernel changes (see README).
+        let mean = stats.mean();
+        out.value(
+            "target open-loop tick mean < 1500 instructions (not gated)",
+            mean,
+            if mean < TARGET_OPEN_LOOP as f32 {
+                "instructions: met"
+            } else {
+                "instructions: MISSED"
+            },
+        );
+    }
     ok
+}
+
+/// `x`, or `x·(1 + 1e-4)` at tick `at` with the `inject-error` feature.
+fn injected(x: f32, n: u32, at: u32) -> f32 {
+    if cfg!(feature = "inject-error") && n == at {
+        x * (1.0 + 1e-4)
+    } else {
+        x
+    }
 }
 
 fn report_stats(out: &mut Report, name: &str, st: &Stats, flops: &Flops) {

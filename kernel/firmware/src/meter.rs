@@ -39,10 +39,12 @@ pub trait Meter {
 }
 
 /// SysTick under QEMU's `-icount shift=10`: counts instructions.
+#[cfg(not(feature = "board"))]
 pub struct IcountSysTick {
     _syst: cortex_m::peripheral::SYST,
 }
 
+#[cfg(not(feature = "board"))]
 impl IcountSysTick {
     /// Take SysTick: core clock, full 24-bit reload, no interrupt.
     pub fn new(mut syst: cortex_m::peripheral::SYST) -> Self {
@@ -56,6 +58,7 @@ impl IcountSysTick {
     }
 }
 
+#[cfg(not(feature = "board"))]
 impl Meter for IcountSysTick {
     const UNIT: &'static str = "instructions";
 

@@ -27,6 +27,7 @@ impl Line {
         }
     }
 
+    #[inline(never)]
     fn byte(&mut self, b: u8) -> &mut Self {
         if let Some(slot) = self.buf.get_mut(self.len) {
             *slot = b;
@@ -35,6 +36,7 @@ impl Line {
         self
     }
 
+    #[inline(never)]
     fn str(&mut self, s: &str) -> &mut Self {
         for b in s.bytes() {
             self.byte(b);
@@ -42,6 +44,7 @@ impl Line {
         self
     }
 
+    #[inline(never)]
     fn u64(&mut self, mut x: u64) -> &mut Self {
         let mut digits = [0u8; 20];
         let mut n = 0;
@@ -66,6 +69,7 @@ impl Line {
     }
 
     /// `x` to six significant digits, `d.ddddde±XX`.
+    #[inline(never)]
     fn f32(&mut self, x: f32) -> &mut Self {
         if x.is_nan() {
             return self.str("NaN");
@@ -123,6 +127,7 @@ impl Report {
     }
 
     #[cfg(not(feature = "defmt"))]
+    #[inline(never)]
     fn emit(&mut self, line: &mut Line) {
         line.byte(b'\n');
         if let (Some(out), Some(bytes)) = (self.out.as_mut(), line.buf.get(..line.len)) {

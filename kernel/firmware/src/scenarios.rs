@@ -65,13 +65,13 @@ pub fn exact_vessel<S: Scalar>() -> Result<ExactVessel<S>, Error> {
     // Capacity 1 each: these pushes cannot be refused.
     let _ = spec.outlets.push(Outlet::Measured);
     let _ = spec.reactions.push(ReactionSpec {
-            stoichiometry: [-S::ONE],
-            forward: Kinetics {
-                rate_constant: S::of(EXACT_K),
-                activation_energy: S::ZERO,
-                orders: [S::ONE],
-            },
-            reverse: None,
+        stoichiometry: [-S::ONE],
+        forward: Kinetics {
+            rate_constant: S::of(EXACT_K),
+            activation_energy: S::ZERO,
+            orders: [S::ONE],
+        },
+        reverse: None,
         reference_temperature: S::of(EXACT_TEMPERATURE),
     });
     Vessel::new(

@@ -22,8 +22,8 @@ pub trait Estimator<U> {
     fn tick(&mut self, u: &U) -> StepReport<f32>;
 }
 
-impl<const N: usize, const R: usize, const O: usize, const I: usize>
-    Estimator<Inputs<f32, N, I, O>> for Vessel<f32, N, R, O>
+impl<const N: usize, const R: usize, const O: usize, const I: usize> Estimator<Inputs<f32, N, I, O>>
+    for Vessel<f32, N, R, O>
 {
     #[inline(always)]
     fn tick(&mut self, u: &Inputs<f32, N, I, O>) -> StepReport<f32> {
@@ -32,12 +32,14 @@ impl<const N: usize, const R: usize, const O: usize, const I: usize>
 }
 
 /// A delay that does not wait: it records the time asked for (emulator).
+#[cfg(not(feature = "board"))]
 #[derive(Default)]
 pub struct VirtualDelay {
     /// Total time asked for, ns.
     pub waited_ns: u64,
 }
 
+#[cfg(not(feature = "board"))]
 impl DelayNs for VirtualDelay {
     fn delay_ns(&mut self, ns: u32) {
         self.waited_ns = self.waited_ns.saturating_add(u64::from(ns));

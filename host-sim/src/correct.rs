@@ -3,6 +3,7 @@
 //! drawn and known, next to the open-loop balance.
 
 use heapless::Vec as HVec;
+use holdup_kernel::diagnostics::{ChiSquareBounds, NisMonitor, NisState};
 use holdup_kernel::observer::{ObserverCounters, MAX_BIASES};
 use holdup_kernel::{BiasTarget, Inputs, Observer, ObserverSpec, Scalar, Update};
 
@@ -26,9 +27,13 @@ pub struct LabTally {
     pub not_pending: u64,
 }
 
+/// Level innovations in the model-mismatch window.
+pub const NIS_WINDOW: usize = 120;
+
 /// The observer with its lab schedule.
 pub struct Corrector<S, const N: usize, const D: usize> {
     obs: Observer<S, N, R, O, D, LAB_SLOTS>,
+    nis: NisMonitor<S, NIS_WINDOW>,
     lab_sigma: f64,
     /// Lab indices in sample-time order (the lab list is sorted so), cursor.
     next_draw: usize,
@@ -110,10 +115,13 @@ impl<S: Scalar, const N: usize, const D: usize> Corrector<S, N, D> {
             biases,
         };
         let obs = Observer::new(ves, spec)?;
+        // Two-sided 95 % bounds on the windowed sum of level NIS values.
+        let nis = NisMonitor::new(ChiSquareBounds::new(S::of(0.95))?)?;
         let mut by_result: Vec<usize> = (0..labs.len()).collect();
         by_result.sort_by_key(|&i| result_time(&labs[i]));
         Ok(Self {
             obs,
+            nis,
             lab_sigma: est.lab_sigma,
             next_draw: 0,
             by_result,
@@ -129,7 +137,8 @@ impl<S: Scalar, const N: usize, const D: usize> Corrector<S, N, D> {
     /// reading, lab samples drawn up to `t`, lab results known by `t`.
     pub fn measure(&mut self, t: i64, level: Option<f64>, labs: &[LabResult]) {
         if let Some(z) = level.filter(|z| z.is_finite()) {
-            let _ = self.obs.update_level(S::of(z));
+            let out = self.obs.update_level(S::of(z));
+            let _ = self.nis.record(&out);
         }
         while let Some(l) = labs.get(self.next_draw) {
             if l.sample_time > t {
@@ -192,6 +201,11 @@ impl<S: Scalar, const N: usize, const D: usize> Corrector<S, N, D> {
     /// Level of the corrected holdup, m.
     pub fn level(&self) -> f64 {
         self.obs.vessel().level().to_f64()
+    }
+
+    /// Model-mismatch state of the windowed level NIS.
+    pub fn nis_state(&self) -> NisState {
+        self.nis.state()
     }
 
     /// The observer's counters.

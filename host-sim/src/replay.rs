@@ -13,7 +13,10 @@ use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
-use holdup_kernel::{Geometry, Inputs, Scalar, StatusFlags};
+use holdup_kernel::diagnostics::{
+    diagnose, ClosureAlarm, ClosureConfig, ClosureMonitor, DeviceStatus, DiagnosticInputs,
+};
+use holdup_kernel::{Geometry, Inputs, Quality, Scalar, StatusFlags};
 use serde_json::json;
 
 use crate::correct::Corrector;
@@ -179,6 +182,55 @@ struct Tally {
     flags: [u64; 16],
 }
 
+/// Quality of each category of input this tick.
+#[derive(Clone, Copy, Debug)]
+struct InputQuality<const N: usize> {
+    flow: Quality,
+    level: Quality,
+    temperature: Quality,
+    feed: [Quality; N],
+}
+
+impl<const N: usize> Default for InputQuality<N> {
+    fn default() -> Self {
+        Self {
+            flow: Quality::Good,
+            level: Quality::Good,
+            temperature: Quality::Good,
+            feed: [Quality::Good; N],
+        }
+    }
+}
+
+impl<const N: usize> InputQuality<N> {
+    /// The worst of all inputs, as a word for estimates.csv.
+    fn word(&self) -> &'static str {
+        let w = self
+            .feed
+            .iter()
+            .fold(self.flow.max(self.temperature), |a, b| a.max(*b));
+        quality_word(w)
+    }
+}
+
+/// Quality of a resampled log value: interpolated or held within its
+/// maximum age is good; stale (older) is uncertain; missing is bad.
+fn quality_of(state: SampleState) -> Quality {
+    match state {
+        SampleState::Stale => Quality::Uncertain,
+        SampleState::Missing => Quality::Bad,
+        _ => Quality::Good,
+    }
+}
+
+fn quality_word(q: Quality) -> &'static str {
+    match q {
+        Quality::Good => "good",
+        Quality::Uncertain => "uncertain",
+        Quality::Bad => "bad",
+    }
+}
+
 /// The signals of the plant resolved against the reader.
 struct Sources {
     inlet_flow: Vec<Source>,
@@ -220,14 +272,9 @@ impl Sources {
     fn inputs<S: Scalar, const N: usize>(
         &self,
         samples: &[crate::log::TagSample],
-    ) -> (Inputs<S, N, I, O>, &'static str, Vec<f64>, Option<f64>) {
+    ) -> (Inputs<S, N, I, O>, InputQuality<N>, Vec<f64>, Option<f64>) {
         let mut u: Inputs<S, N, I, O> = Inputs::quiescent(S::ONE);
-        let mut quality = "good";
-        let mut note = |state: SampleState| match state {
-            SampleState::Stale if quality == "good" => quality = "uncertain",
-            SampleState::Missing => quality = "bad",
-            _ => {}
-        };
+        let mut q = InputQuality::<N>::default();
         // A missing value reaches the kernel as NaN: it is replaced and flagged there.
         let si = |(x, st): (f64, SampleState)| {
             if st == SampleState::Missing {
@@ -239,35 +286,39 @@ impl Sources {
         let mut flows = Vec::new();
         for (k, src) in self.inlet_flow.iter().enumerate() {
             let r = src.read(samples);
-            note(r.1);
+            q.flow = q.flow.max(quality_of(r.1));
             u.inlet_flows[k] = S::of(si(r));
             flows.push(r.0 * 3600.0);
             for (i, f) in self.feeds[k].iter().enumerate().take(N) {
                 let r = f.read(samples);
-                note(r.1);
+                q.feed[i] = q.feed[i].max(quality_of(r.1));
                 u.feed[k][i] = S::of(si(r));
             }
         }
         for (k, src) in self.outlet_flow.iter().enumerate() {
             if let Some(src) = src {
                 let r = src.read(samples);
-                note(r.1);
+                q.flow = q.flow.max(quality_of(r.1));
                 u.outlet_flows[k] = S::of(si(r));
                 flows.push(r.0 * 3600.0);
             }
         }
         let r = self.temperature.read(samples);
-        note(r.1);
+        q.temperature = quality_of(r.1);
         u.temperature = S::of(si(r));
         let level = self.level.as_ref().map(|l| {
             let (z, st) = l.read(samples);
+            q.level = quality_of(st);
             if st == SampleState::Missing || st == SampleState::Stale {
                 f64::NAN
             } else {
                 z
             }
         });
-        (u, quality, flows, level)
+        if self.level.is_none() {
+            q.level = Quality::Bad;
+        }
+        (u, q, flows, level)
     }
 }
 
@@ -351,6 +402,9 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
             header.push_str(&format!(",bias_{n},bias_{n}_sigma"));
         }
     }
+    if corr.is_some() {
+        header.push_str(",status,holdup_quality,concentration_quality");
+    }
     header.push_str(",flags,input_quality\n");
     est.write_all(header.as_bytes())
         .map_err(io_err(&est_path))?;
@@ -418,6 +472,22 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
 
     let tick = i64::from(plant.tick_ms);
     let every = (req.output_every_ms as i64).max(tick);
+    // Balance closure: needs the estimator's noise settings, the level, and
+    // every outlet metered (an orifice or weir flow is not a measurement).
+    let computed_outlets = plant
+        .outlets
+        .iter()
+        .any(|o| !matches!(o.kind, OutletKind::Measured(_)));
+    let closure_settings = plant
+        .estimator
+        .as_ref()
+        .filter(|_| sources.level.is_some() && !computed_outlets);
+    let mut closure: Option<ClosureMonitor<S>> = None;
+    let mut closure_alarms: Vec<(i64, Option<i64>, ClosureAlarm)> = Vec::new();
+    let mut net_prev = 0.0f64; // m³ in − out over the previous tick, from the meters
+    let mut status_ticks = [0u64; 5];
+    let mut reason_ticks: std::collections::BTreeMap<&'static str, u64> = Default::default();
+    let n_inlets = plant.inlets.len();
     let mut ticks: u64 = 0;
     let mut t = t0;
     let mut row = String::new();
@@ -487,10 +557,76 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
             s.push(x, *q);
         }
 
+        // Closure window: the holdup the level says now against what the
+        // meters said went in and out during the previous tick.
+        if let Some(e) = closure_settings {
+            if closure.is_none() {
+                let q_nom: f64 = flows_now
+                    .iter()
+                    .map(|q| (q / 3600.0).powi(2))
+                    .sum::<f64>()
+                    .sqrt();
+                let z0 = measured_level
+                    .filter(|z| z.is_finite())
+                    .unwrap_or(ves.level().to_f64());
+                let cfg = ClosureConfig {
+                    window_ticks: u32::try_from(e.closure_window_ms / plant.tick_ms as u64)
+                        .unwrap_or(u32::MAX)
+                        .max(1),
+                    tick_ms: plant.tick_ms,
+                    holdup_noise: S::of(geometry.area_at(z0) * e.level_sigma),
+                    net_flow_noise: S::of((e.flow_sigma * q_nom).max(1e-9)),
+                    k: S::of(e.cusum_k),
+                    h: S::of(e.cusum_h),
+                };
+                closure = Some(ClosureMonitor::new(&cfg).map_err(kernel_err(plant))?);
+            }
+            if let Some(m) = closure.as_mut() {
+                let held = measured_level
+                    .filter(|z| z.is_finite())
+                    .map(|z| S::of(geometry.volume_at(z)));
+                let rep = m.update(held, S::of(net_prev));
+                match (rep.alarm, closure_alarms.last_mut()) {
+                    (Some(a), Some(last)) if last.1.is_none() && last.2 == a => {}
+                    (Some(a), last) => {
+                        if let Some(l) = last {
+                            if l.1.is_none() {
+                                l.1 = Some(t);
+                            }
+                        }
+                        closure_alarms.push((t, None, a));
+                    }
+                    (None, Some(last)) if last.1.is_none() => last.1 = Some(t),
+                    (None, _) => {}
+                }
+            }
+            let (q_in, q_out) = flows_now.split_at(n_inlets.min(flows_now.len()));
+            net_prev = (q_in.iter().sum::<f64>() - q_out.iter().sum::<f64>()) / 3600.0
+                * (tick as f64 / 1000.0);
+        }
+
         let report = ves.step(&u);
         if let Some(c) = corr.as_mut() {
             c.tick(&u);
         }
+        // NE107 status of the corrected estimate.
+        let diag = corr.as_ref().map(|c| {
+            let d = diagnose(&DiagnosticInputs::<N> {
+                flags: report.flags,
+                flow: quality.flow,
+                level: quality.level,
+                temperature: quality.temperature,
+                feed: quality.feed,
+                closure: closure.as_ref().and_then(|m| m.alarm()),
+                nis: c.nis_state(),
+                function_check: false,
+            });
+            status_ticks[d.status as usize] += 1;
+            for r in d.reasons.names() {
+                *reason_ticks.entry(r).or_default() += 1;
+            }
+            d
+        });
         ticks += 1;
         s_outflow.push(
             x,
@@ -527,7 +663,20 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
                 }
             }
             let names: Vec<&str> = report.flags.names().collect();
-            row.push_str(&format!(",{},{}\n", names.join("|"), quality));
+            if let Some(d) = &diag {
+                let worst_c = d
+                    .concentrations
+                    .iter()
+                    .take(n_species)
+                    .fold(Quality::Good, |a, b| a.max(*b));
+                row.push_str(&format!(
+                    ",{},{},{}",
+                    d.status.letter(),
+                    quality_word(d.holdup),
+                    quality_word(worst_c)
+                ));
+            }
+            row.push_str(&format!(",{},{}\n", names.join("|"), quality.word()));
             est.write_all(row.as_bytes()).map_err(io_err(&est_path))?;
         }
         if let Some(b) = &bar {
@@ -557,6 +706,14 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
             label,
         })
         .collect();
+    let mut bands = bands;
+    for (a, b, alarm) in &closure_alarms {
+        bands.push(Band {
+            x0: hours(*a),
+            x1: hours(b.unwrap_or(t_end)),
+            label: alarm.message().to_string(),
+        });
+    }
     let x_label = format!("time since {} [h]", iso(t0));
     let footer = CAUTION.to_string();
     let mut fig_holdup = Panel::new("holdup [m³]");
@@ -740,6 +897,28 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
         "kernel_flags_ticks": flags_json,
         "open_loop_level_vs_measured": level_json,
         "estimator": estimator_json,
+        "closure": closure.as_ref().map(|m| json!({
+            "windows_evaluated": m.windows_evaluated(),
+            "windows_lost": m.windows_lost(),
+            "residual_sigma_m3": m.residual_sigma().to_f64(),
+            "alarms": closure_alarms.iter().map(|(a, b, al)| json!({
+                "start": iso(*a),
+                "end": b.map(iso),
+                "alarm": al.message(),
+            })).collect::<Vec<_>>(),
+        })),
+        "status_ticks": if corrected {
+            json!({
+                "good": status_ticks[DeviceStatus::Good as usize],
+                "maintenance_required": status_ticks[DeviceStatus::MaintenanceRequired as usize],
+                "out_of_specification": status_ticks[DeviceStatus::OutOfSpecification as usize],
+                "function_check": status_ticks[DeviceStatus::FunctionCheck as usize],
+                "failure": status_ticks[DeviceStatus::Failure as usize],
+                "reasons": reason_ticks.iter().map(|(k, v)| (k.to_string(), json!(v))).collect::<serde_json::Map<_, _>>(),
+            })
+        } else {
+            serde_json::Value::Null
+        },
         "lab_comparison": lab_json,
         "lab_outside_replay": open_cmp.outside_span,
         "final": final_state,
@@ -816,6 +995,38 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
                 "  meter bias of {n}: {:+.2} % ± {:.2} %\n",
                 100.0 * b.0,
                 100.0 * b.1
+            ));
+        }
+    }
+    if corrected {
+        text.push_str(&format!(
+            "Status (NAMUR NE107, ticks): good {}, maintenance required {}, out of specification {}, function check {}, failure {}\n",
+            status_ticks[DeviceStatus::Good as usize],
+            status_ticks[DeviceStatus::MaintenanceRequired as usize],
+            status_ticks[DeviceStatus::OutOfSpecification as usize],
+            status_ticks[DeviceStatus::FunctionCheck as usize],
+            status_ticks[DeviceStatus::Failure as usize],
+        ));
+        for (k, v) in &reason_ticks {
+            text.push_str(&format!("  {k}: {v} ticks\n"));
+        }
+    }
+    if let Some(m) = &closure {
+        text.push_str(&format!(
+            "Balance closure: {} windows checked ({} lost to missing data), residual 1σ {:.4} m³\n",
+            m.windows_evaluated(),
+            m.windows_lost(),
+            m.residual_sigma().to_f64()
+        ));
+        if closure_alarms.is_empty() {
+            text.push_str("  no alarm: the balance closes\n");
+        }
+        for (a, b, al) in &closure_alarms {
+            text.push_str(&format!(
+                "  ALARM {}: from {} to {}\n",
+                al.message(),
+                iso(*a),
+                b.map(iso).unwrap_or_else(|| "the end".to_string())
             ));
         }
     }

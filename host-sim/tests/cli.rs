@@ -538,5 +538,13 @@ fn demo_writes_everything_into_its_folder() {
         (bias - 0.03).abs() < 0.01,
         "caustic meter bias estimate {bias}"
     );
+    // An inlet meter reading high shows as "more out than in" (the level
+    // rises less than the meters say): the closure check must say so.
+    let alarms = s["closure"]["alarms"].as_array().expect("closure alarms");
+    assert!(!alarms.is_empty(), "no closure alarm for a 3 % meter error");
+    assert_eq!(
+        alarms[0]["alarm"],
+        "balance does not close: more out than in"
+    );
     assert!(String::from_utf8_lossy(&o.stdout).contains("advisory"));
 }

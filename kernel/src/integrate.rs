@@ -159,11 +159,21 @@ pub(crate) fn exact<S: Scalar, const N: usize, const R: usize>(
     let g = if varying { x.ln1p() / x } else { S::ONE };
     let dilution = fr.q_in * h * g / fr.v0;
     let mut d = [S::ZERO; N];
+    // Species without first-order consumption share one exponent: one
+    // `expm1` serves them all (saves N − 1 calls per tick in the split step).
+    let mut cached: Option<(S, S, S)> = None;
     for i in 0..N {
         let e = dilution + lam[i] * h;
         // φ = 1 − e^{−E}, ψ = φ/E (→ 1 as E → 0).
-        let phi = -(-e).expm1();
-        let psi = if e > S::ZERO { phi / e } else { S::ONE };
+        let (phi, psi) = match cached {
+            Some((ce, cphi, cpsi)) if ce == e => (cphi, cpsi),
+            _ => {
+                let phi = -(-e).expm1();
+                let psi = if e > S::ZERO { phi / e } else { S::ONE };
+                cached = Some((e, phi, psi));
+                (phi, psi)
+            }
+        };
         let c0 = y0[i] / fr.v0;
         d[i] = fr.v1 * (fr.feed[i] * h * g * psi / fr.v0 - c0 * phi) + x * y0[i];
     }

@@ -9,7 +9,14 @@
 //!    * the same run by the kernel in `f32` on the host (for information: the
 //!      firmware reports how many ulps it is from it);
 //!    * the floating-point work of one tick, counted by running the kernel
-//!      on a scalar type that counts its operations.
+//!      on a scalar type that counts its operations;
+//!    * for the observed scenario (`src/observed.rs`): the plant in `f64`
+//!      with the true flows (its level every minute and its NaOH at the lab
+//!      draws, which the target needs to make its readings; its NaOH at the
+//!      checkpoints, the "truth" the target's estimate is checked against),
+//!      the observer replayed on the host in `f32` on the same readings (the
+//!      target must match it bit for bit), and the open-loop kernel in `f32`
+//!      fed the same biased readings (what the observer must beat).
 //!
 //! Everything here is deterministic: the same kernel source gives the same
 //! file. `cargo build` prints its path with `-vv`; `measure.sh` shows it.
@@ -25,9 +32,14 @@ use holdup_kernel::reference;
 #[allow(dead_code)]
 mod scenarios;
 
+#[path = "src/observed.rs"]
+#[allow(dead_code)]
+mod observed;
+
 #[path = "host/flops.rs"]
 mod flops;
 
+use observed::*;
 use scenarios::*;
 
 fn main() {
@@ -37,6 +49,7 @@ fn main() {
     println!("cargo:rerun-if-changed=memory.x");
     println!("cargo:rerun-if-changed=build.rs");
     println!("cargo:rerun-if-changed=src/scenarios.rs");
+    println!("cargo:rerun-if-changed=src/observed.rs");
     println!("cargo:rerun-if-changed=host/flops.rs");
     let target = env::var("TARGET").unwrap_or_default();
     if target.starts_with("thumb") {
@@ -75,6 +88,144 @@ fn reference_run<S: holdup_kernel::Scalar>() -> Vec<[f64; 4]> {
         }
     }
     points
+}
+
+/// The observed scenario's plant: the reference vessel in `f64` with the
+/// true flows (no meter bias, no noise).
+struct Plant {
+    /// Level, m, at `0, LEVEL_KNOT_S, 2·LEVEL_KNOT_S, …` s.
+    level_knots: Vec<f32>,
+    /// Lab results (plant NaOH at the draw, rounded to f32, plus lab noise).
+    lab_values: Vec<f32>,
+    /// Plant NaOH at the checkpoints, mol/m³.
+    naoh: Vec<f64>,
+}
+
+fn plant() -> Plant {
+    let mut v = reference::vessel::<f64>().expect("reference vessel");
+    let mut lab_noise = Noise::new(LAB_SEED);
+    let mut p = Plant {
+        level_knots: vec![v.level() as f32],
+        lab_values: Vec::new(),
+        naoh: Vec::new(),
+    };
+    for n in 0..OBS_TICKS {
+        let u = reference::inputs_at::<f64>(v.time_ms());
+        v.step(&u);
+        let s = n + 1;
+        if s % LEVEL_KNOT_S == 0 {
+            p.level_knots.push(v.level() as f32);
+        }
+        if lab_draw_at(s).is_some() {
+            let c = v.concentrations()[LAB_SPECIES] as f32;
+            p.lab_values.push(c + LAB_SIGMA * lab_noise.normal());
+        }
+        if s % OBS_EVERY == 0 {
+            p.naoh.push(v.concentrations()[LAB_SPECIES]);
+        }
+    }
+    assert_eq!(p.level_knots.len(), LEVEL_KNOTS);
+    assert_eq!(p.lab_values.len(), LAB_DRAWS);
+    assert_eq!(p.naoh.len(), OBS_POINTS);
+    p
+}
+
+/// The observer on the host in `f32` on the scenario's readings: the
+/// estimates at every checkpoint and the final counters.
+fn observer_host(p: &Plant) -> (Vec<[f32; 5]>, [u32; 9]) {
+    let mut t = Tracked::<f32>::new().expect("observer");
+    let mut inst = Instruments::new(&p.level_knots, &p.lab_values);
+    let mut points = Vec::new();
+    for n in 0..OBS_TICKS {
+        let r = inst.readings(n);
+        observe(&mut t, &r);
+        if (n + 1) % OBS_EVERY == 0 {
+            points.push(state5(&t.obs));
+        }
+    }
+    (points, counters(&t))
+}
+
+/// The open-loop kernel in `f32` fed the same (biased, noisy) meter
+/// readings: its NaOH at every checkpoint.
+fn open_loop(p: &Plant) -> Vec<f32> {
+    let mut v = reference::vessel::<f32>().expect("reference vessel");
+    let mut inst = Instruments::new(&p.level_knots, &p.lab_values);
+    let mut points = Vec::new();
+    for n in 0..OBS_TICKS {
+        let r = inst.readings(n);
+        v.step(&r.u);
+        if (n + 1) % OBS_EVERY == 0 {
+            points.push(v.concentrations()[LAB_SPECIES]);
+        }
+    }
+    points
+}
+
+fn f32_list(name: &str, doc: &str, len: &str, xs: impl Iterator<Item = f64>) -> String {
+    let mut s = format!("/// {doc}\npub const {name}: [f32; {len}] = [\n");
+    for x in xs {
+        let _ = writeln!(s, "    {},", f32_lit(x));
+    }
+    s.push_str("];\n\n");
+    s
+}
+
+fn observed_expected(s: &mut String) -> Plant {
+    let p = plant();
+    let (host, counts) = observer_host(&p);
+    let open = open_loop(&p);
+    s.push_str(&f32_list(
+        "PLANT_LEVEL",
+        "Observed scenario: the plant's level (m) every LEVEL_KNOT_S s, from t = 0 \
+         (host f64, rounded to f32).",
+        "LEVEL_KNOTS",
+        p.level_knots.iter().map(|&x| f64::from(x)),
+    ));
+    s.push_str(&f32_list(
+        "LAB_VALUES",
+        "Observed scenario: the lab results in draw order (plant NaOH at the draw \
+         plus lab noise), mol/m³.",
+        "LAB_DRAWS",
+        p.lab_values.iter().map(|&x| f64::from(x)),
+    ));
+    s.push_str(&f32_list(
+        "PLANT_NAOH",
+        "Observed scenario: the plant's NaOH (mol/m³) at every checkpoint (host f64, \
+         true flows), rounded to f32.",
+        "OBS_POINTS",
+        p.naoh.iter().copied(),
+    ));
+    s.push_str(&f32_list(
+        "OPEN_LOOP_NAOH",
+        "Observed scenario: the open-loop kernel's NaOH (mol/m³) at every checkpoint, \
+         host f32, fed the same biased readings.",
+        "OBS_POINTS",
+        open.iter().map(|&x| f64::from(x)),
+    ));
+    let _ = writeln!(
+        s,
+        "/// Observed scenario: the host f32 observer's `[V, c₀, c₁, c₂, β]` at every \
+         checkpoint (the target must match it).\npub const OBS_HOST_F32: [[f32; 5]; OBS_POINTS] = ["
+    );
+    for x in &host {
+        let _ = writeln!(
+            s,
+            "    [{}, {}, {}, {}, {}],",
+            f32_lit(f64::from(x[0])),
+            f32_lit(f64::from(x[1])),
+            f32_lit(f64::from(x[2])),
+            f32_lit(f64::from(x[3])),
+            f32_lit(f64::from(x[4]))
+        );
+    }
+    s.push_str("];\n\n");
+    let _ = writeln!(
+        s,
+        "/// Observed scenario: the host observer's counters at the end (see \
+         `observed::counters`).\npub const OBS_HOST_COUNTERS: [u32; 9] = {counts:?};\n"
+    );
+    p
 }
 
 fn f32_lit(x: f64) -> String {
@@ -136,9 +287,16 @@ fn expected() -> String {
     ));
     s.push('\n');
 
+    let p = observed_expected(&mut s);
+
     let exact = flops::exact_tick();
     let mprk = flops::reference_tick();
     s.push_str(&exact.to_rust("FLOPS_EXACT", "the analytic scenario's tick (exact step)"));
     s.push_str(&mprk.to_rust("FLOPS_REFERENCE", "the reference tick (MPRK22 split)"));
+    let obs = flops::observer_tick(&p.level_knots, &p.lab_values);
+    s.push_str(&obs.to_rust(
+        "FLOPS_OBSERVER",
+        "the observer tick (predict, level update, lab events)",
+    ));
     s
 }

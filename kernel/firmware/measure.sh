@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # Prints the gateway firmware's measured table: instructions per tick
-# (exact, from QEMU's -icount), flops and their ratio, kernel state size,
-# stack high-water marks and the firmware's sections.
+# (exact, from QEMU's -icount) open loop and with the observer, flops and
+# their ratio, kernel and observer state sizes, stack high-water marks and
+# the firmware's sections.
 #
 #   bash kernel/firmware/measure.sh            # table (markdown) on stdout
 #
@@ -60,6 +61,14 @@ eflops=$(after 'exact tick (1 species, 1 reaction)' 'flops per tick')
 ecalls=$(after 'exact tick (1 species, 1 reaction)' 'libm calls per tick')
 eratio=$(after 'exact tick (1 species, 1 reaction)' 'ratio')
 estack=$(after 'exact tick (1 species, 1 reaction)' 'stack high-water')
+read -r omin omean omax <<<"$(cost 'observer tick (level + lab)')"
+oflops=$(after 'observer tick (level + lab)' 'flops per tick')
+ocalls=$(after 'observer tick (level + lab)' 'libm calls per tick')
+osqrt=$(after 'observer tick (level + lab)' 'of which sqrt')
+oratio=$(after 'observer tick (level + lab)' 'ratio')
+ostack=$(after 'observer tick (level + lab)' 'stack high-water')
+obusy=$(after 'observer tick (level + lab)' 'mean of those ticks')
+ostate=$(field 'size_of Observer<f32')
 state=$(field 'size_of ReferenceVessel<f32>')
 estate=$(field 'size_of ExactVessel<f32>')
 fwstack=$(field 'stack high-water, whole firmware')
@@ -72,15 +81,20 @@ Gateway firmware on QEMU mps2-an386 (Cortex-M4F, f32), $(rustc --version | cut -
 | quantity | measured | target |
 |---|---|---|
 | open-loop reference tick (3 species, 2 reactions, MPRK22 split), instructions min / mean / max over 28,800 ticks | $rmin / $(num "$rmean" 0) / $rmax | < 1,500: $(verdict "$rmean" 1500) |
-| tick with observer (level + lab correction), instructions | pending (not yet in the firmware) | < 6,000 |
+| tick with observer (level update every tick, lab sample every 2 h, result 45 min later), instructions min / mean / max over 28,800 ticks | $omin / $(num "$omean" 0) / $omax | < 6,000: $(verdict "$omean" 6000) |
+| tick with observer, mean over the ticks with a lab sample pending | $(num "$obusy" 0) | — |
 | exact tick (analytic scenario, 1 species, 1 reaction), instructions min / mean / max | $emin / $(num "$emean" 0) / $emax | — |
+| flops per observer tick (+ − × ÷) + libm calls (of which sqrt) | $(num "$oflops" 0) + $(num "$ocalls" 1) ($(num "$osqrt" 1)) | — |
+| instructions per (flop + libm call), observer tick | $(num "$oratio" 2) | — |
 | flops per reference tick (+ − × ÷) + libm calls | $(num "$rflops" 1) + $(num "$rcalls" 0) | — |
 | instructions per (flop + libm call), reference tick | $(num "$rratio" 2) | — |
 | flops per exact tick + libm calls; ratio | $(num "$eflops" 0) + $(num "$ecalls" 0); $(num "$eratio" 2) | — |
 | kernel state, \`size_of::<ReferenceVessel<f32>>()\` | $state B | < 2,048 B: $(verdict "$state" 2048) |
 | kernel state, analytic scenario (\`Vessel<f32, 1, 1, 1>\`) | $estate B | — |
+| observer state, \`size_of::<Observer<f32, 3, 2, 1, 5, 2>>()\` (includes the vessel) | $ostate B | < 2,048 B: $(verdict "$ostate" 2048) |
 | stack high-water of a reference tick | $rstack B | — |
 | stack high-water of an exact tick | $estack B | — |
+| stack high-water of an observer tick (checkpoints, lab draws and results) | $ostack B | — |
 | stack high-water, whole firmware from reset | $fwstack B | — |
 | flash: .vector_table + .text + .rodata + .data | $flash B ($(awk -v x="$flash" 'BEGIN { printf "%.1f", x / 1024 }') KiB): text ${text:-0}, rodata ${ro:-0}, vectors ${vt:-0}, data ${data:-0} | < 65,536 B: $(verdict "$flash" 65536) |
 | static RAM: .data + .bss + .uninit | $ram B: data ${data:-0}, bss ${bss:-0}, uninit ${uninit:-0} | — |

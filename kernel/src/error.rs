@@ -88,6 +88,50 @@ pub enum Error {
     SignalStuck,
     /// A probability is not strictly between 0 and 1.
     ConfigProbability,
+    /// Configuration bytes are not a valid postcard encoding of the
+    /// specification (truncated, corrupted, or a list longer than its
+    /// capacity).
+    ConfigDecode,
+    /// A configuration or state could not be encoded (the buffer is too
+    /// small).
+    ConfigEncode,
+    /// A checkpoint slot is blank or holds something that is not a
+    /// checkpoint (its magic number does not match).
+    CheckpointEmpty,
+    /// A checkpoint's header or payload CRC-32 does not match: a torn or
+    /// corrupted write.
+    CheckpointCrcMismatch,
+    /// A checkpoint was written in another format version.
+    CheckpointVersion,
+    /// A checkpoint holds another kind of state (a vessel where an observer
+    /// is restored, or the reverse).
+    CheckpointKind,
+    /// A checkpoint was written for another configuration or build (scalar
+    /// type, sizes, model or observer settings): its fingerprint differs.
+    CheckpointConfigMismatch,
+    /// An encoded state does not fit the checkpoint slot or the scratch
+    /// buffer.
+    CheckpointTooLarge,
+    /// A checkpoint payload passed its CRC but does not decode as the
+    /// expected state.
+    CheckpointDecode,
+    /// A decoded checkpoint state is invalid: a non-finite or negative
+    /// value, a holdup above the capacity, or a covariance that is not
+    /// symmetric positive definite. It is never installed.
+    CheckpointInvalidState,
+    /// Neither checkpoint slot holds a valid checkpoint (and the two fail
+    /// for different reasons; see `Checkpoints::check_slot`).
+    CheckpointNoValidSlot,
+    /// The checkpoint slots are smaller than a header, overlap the end of
+    /// the storage, or their addresses overflow.
+    CheckpointLayout,
+    /// A storage read or write failed on the bus or in the device.
+    StorageIo,
+    /// A storage access reaches beyond the device's capacity.
+    StorageOutOfRange,
+    /// A storage device's configuration is invalid (its capacity does not
+    /// fit the address width, or is zero).
+    StorageConfig,
 }
 
 impl Error {
@@ -141,6 +185,33 @@ impl Error {
             }
             Error::SignalRate => "signal maximum rate of change must be positive",
             Error::ConfigProbability => "probability must be strictly between 0 and 1",
+            Error::ConfigDecode => {
+                "configuration bytes are not a valid encoding of the specification (truncated, corrupted or over capacity)"
+            }
+            Error::ConfigEncode => "configuration or state does not fit the encoding buffer",
+            Error::CheckpointEmpty => "checkpoint slot is blank or holds no checkpoint (magic mismatch)",
+            Error::CheckpointCrcMismatch => {
+                "checkpoint CRC-32 mismatch: torn or corrupted write"
+            }
+            Error::CheckpointVersion => "checkpoint was written in another format version",
+            Error::CheckpointKind => "checkpoint holds another kind of state (vessel or observer)",
+            Error::CheckpointConfigMismatch => {
+                "checkpoint was written for another configuration or build (fingerprint differs)"
+            }
+            Error::CheckpointTooLarge => "checkpoint does not fit the slot or the scratch buffer",
+            Error::CheckpointDecode => "checkpoint payload does not decode as the expected state",
+            Error::CheckpointInvalidState => {
+                "checkpoint state is invalid (non-finite, negative, over capacity, or covariance not symmetric positive definite)"
+            }
+            Error::CheckpointNoValidSlot => "no checkpoint slot holds a valid checkpoint",
+            Error::CheckpointLayout => {
+                "checkpoint slots must hold a header and lie within the storage"
+            }
+            Error::StorageIo => "storage read or write failed",
+            Error::StorageOutOfRange => "storage access beyond the device capacity",
+            Error::StorageConfig => {
+                "storage capacity must be non-zero and addressable with the configured address width"
+            }
             Error::SignalStuck => {
                 "stuck detection needs a flat duration of at least 1 ms and a non-negative tolerance"
             }

@@ -158,6 +158,7 @@ const SERIES_LIMIT: f64 = 0.1;
 
 /// The bottom head of a vertical cylinder.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub enum Bottom<S> {
     /// Flat bottom: the shell starts at level 0.
     Flat,
@@ -179,6 +180,7 @@ pub enum Bottom<S> {
 
 /// A vessel's shape, as configured; [`Geometry::new`] validates it.
 #[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub enum Shape<S> {
     /// Upright cylinder on a bottom head; `max_level` is head plus shell.
     VerticalCylinder {
@@ -244,7 +246,23 @@ struct Derived<S> {
 }
 
 /// A validated vessel geometry with its derived constants.
+///
+/// With the `serde` feature it is encoded as its [`Shape`] and validated
+/// again ([`Geometry::new`]) when decoded, so a decoded geometry is as valid
+/// as a constructed one.
 #[derive(Clone, Debug)]
+#[cfg_attr(
+    feature = "serde",
+    derive(serde::Serialize, serde::Deserialize),
+    serde(
+        into = "Shape<S>",
+        try_from = "Shape<S>",
+        bound(
+            serialize = "S: Scalar + serde::Serialize",
+            deserialize = "S: Scalar + serde::Deserialize<'de>"
+        )
+    )
+)]
 pub struct Geometry<S> {
     shape: Shape<S>,
     derived: Derived<S>,
@@ -456,6 +474,20 @@ fn validate_table<S: Scalar>(points: &[(S, S)]) -> Result<(), Error> {
         prev = Some((l, v));
     }
     Ok(())
+}
+
+impl<S> From<Geometry<S>> for Shape<S> {
+    fn from(g: Geometry<S>) -> Self {
+        g.shape
+    }
+}
+
+impl<S: Scalar> TryFrom<Shape<S>> for Geometry<S> {
+    type Error = Error;
+
+    fn try_from(shape: Shape<S>) -> Result<Self, Error> {
+        Self::new(shape)
+    }
 }
 
 impl<S: Scalar> Geometry<S> {

@@ -45,6 +45,9 @@
 //! | [`observer`] | extended Kalman filter: level, analyser and delayed lab corrections, meter biases |
 //! | [`diagnostics`] | balance-closure CUSUM, NIS model-mismatch test, NAMUR NE107 status and output qualities |
 //! | [`status`] | status flags and what a tick reports |
+//! | [`storage`] | byte storage for checkpoints: trait, RAM, SPI FRAM driver |
+//! | [`crc`] | CRC-32 for checkpoint records |
+//! | `checkpoint` | (feature `serde`) state in two CRC-checked, versioned slots; postcard config encoding |
 //! | [`error`] | the one error enum |
 //! | [`reference`](mod@reference) | the reference configuration (benchmarks, firmware, demo) |
 //!
@@ -129,6 +132,9 @@
 #![forbid(unsafe_code)]
 #![deny(missing_docs)]
 
+#[cfg(feature = "serde")]
+pub mod checkpoint;
+pub mod crc;
 pub mod diagnostics;
 pub mod error;
 pub mod geometry;
@@ -138,16 +144,19 @@ pub mod model;
 pub mod observer;
 pub mod reference;
 pub mod scalar;
+#[cfg(feature = "serde")]
+mod serde_arrays;
 pub mod signal;
 pub mod status;
+pub mod storage;
 pub mod units;
 pub mod vessel;
 
 pub use error::Error;
 pub use geometry::{Bottom, Geometry, Shape};
 pub use model::{Inputs, Kinetics, Method, Model, Outlet, ReactionSpec, VesselSpec};
-pub use observer::{BiasTarget, Observer, ObserverSpec, Update};
+pub use observer::{BiasTarget, Observer, ObserverSpec, ObserverState, Update};
 pub use scalar::{Compensated, Scalar};
 pub use signal::{Quality, Reading, Signal, SignalFlags, SignalKind, SignalSpec, StuckSpec};
 pub use status::{MethodUsed, StatusFlags, StepReport};
-pub use vessel::{InitialState, Vessel};
+pub use vessel::{InitialState, Vessel, VesselState};

@@ -29,6 +29,7 @@ use crate::{Error, Scalar};
 
 /// How an outlet's flow is known.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub enum Outlet<S> {
     /// A flow meter: the flow is an input ([`Inputs::outlet_flows`]).
     Measured,
@@ -56,20 +57,38 @@ pub enum Outlet<S> {
 
 /// One direction of a reaction's kinetics: `k(T)·Π c_i^order_i`.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(
+    feature = "serde",
+    serde(bound(
+        serialize = "S: serde::Serialize",
+        deserialize = "S: serde::Deserialize<'de> + Copy + Default"
+    ))
+)]
 pub struct Kinetics<S, const N: usize> {
     /// Rate constant at `reference_temperature`, in (mol/m³)^(1 − Σ orders)/s.
     pub rate_constant: S,
     /// Activation energy `E_a`, J/mol (0 for no temperature dependence).
     pub activation_energy: S,
     /// Reaction order on each species (0 where the rate does not depend on it).
+    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
     pub orders: [S; N],
 }
 
 /// One reaction: stoichiometry and rate law.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(
+    feature = "serde",
+    serde(bound(
+        serialize = "S: serde::Serialize",
+        deserialize = "S: serde::Deserialize<'de> + Copy + Default"
+    ))
+)]
 pub struct ReactionSpec<S, const N: usize> {
     /// Stoichiometric coefficients `ν_i`: negative for reactants, positive for
     /// products, zero for species not taking part.
+    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
     pub stoichiometry: [S; N],
     /// Forward rate law.
     pub forward: Kinetics<S, N>,
@@ -83,6 +102,7 @@ pub struct ReactionSpec<S, const N: usize> {
 /// Which integrator the component balances use.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub enum Method {
     /// The exact step where the network allows it (no reactions, or
     /// first-order consumption only), MPRK22 otherwise. The default.
@@ -107,6 +127,14 @@ pub enum Method {
 /// Raw description of one vessel with `N` species, up to `R` reactions,
 /// up to `O` outlets.
 #[derive(Clone, Debug)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
+#[cfg_attr(
+    feature = "serde",
+    serde(bound(
+        serialize = "S: serde::Serialize + Scalar",
+        deserialize = "S: serde::Deserialize<'de> + Scalar"
+    ))
+)]
 pub struct VesselSpec<S, const N: usize, const R: usize, const O: usize> {
     /// Shape and size (already validated).
     pub geometry: Geometry<S>,
@@ -150,6 +178,7 @@ impl<S: Scalar, const N: usize, const I: usize, const O: usize> Inputs<S, N, I, 
 
 /// A compiled reaction order: the common cases avoid `powf`.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize))]
 pub(crate) enum Order<S> {
     Zero,
     One,
@@ -195,11 +224,16 @@ impl<S: Scalar> Order<S> {
 
 /// Compiled kinetics of one reaction direction.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize))]
 pub(crate) struct Rate<S, const N: usize> {
     k_ref: S,
     /// `E_a/R`, K.
     ea_over_r: S,
     inv_t_ref: S,
+    #[cfg_attr(
+        feature = "serde",
+        serde(serialize_with = "crate::serde_arrays::serialize")
+    )]
     orders: [Order<S>; N],
 }
 
@@ -246,14 +280,28 @@ impl<S: Scalar, const N: usize> Rate<S, N> {
 
 /// A compiled reaction: stoichiometry and one or two directions.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize))]
 pub(crate) struct Reaction<S, const N: usize> {
+    #[cfg_attr(
+        feature = "serde",
+        serde(serialize_with = "crate::serde_arrays::serialize")
+    )]
     pub(crate) nu: [S; N],
     pub(crate) forward: Rate<S, N>,
     pub(crate) reverse: Option<Rate<S, N>>,
 }
 
 /// A validated vessel model. Built only by [`Model::new`].
+///
+/// With the `serde` feature it can be encoded (the checkpoint's
+/// configuration fingerprint is the CRC of that encoding), but never
+/// decoded: decode a [`VesselSpec`] and validate it with [`Model::new`].
 #[derive(Clone, Debug)]
+#[cfg_attr(
+    feature = "serde",
+    derive(serde::Serialize),
+    serde(bound(serialize = "S: Scalar + serde::Serialize"))
+)]
 pub struct Model<S, const N: usize, const R: usize, const O: usize> {
     pub(crate) geometry: Geometry<S>,
     pub(crate) outlets: Vec<Outlet<S>, O>,

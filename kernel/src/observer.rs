@@ -54,7 +54,7 @@ use heapless::Vec;
 use crate::linalg::{is_positive_definite, mat_mul, solve_matrix};
 use crate::model::Inputs;
 use crate::units::{seconds, Millis};
-use crate::vessel::Vessel;
+use crate::vessel::{Vessel, VesselState};
 use crate::{Error, Scalar, StepReport};
 
 /// Most flow meters whose bias is estimated.
@@ -63,6 +63,7 @@ pub const MAX_BIASES: usize = 4;
 /// A flow meter whose relative bias is part of the state.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub enum BiasTarget {
     /// Inlet meter, by index into [`Inputs::inlet_flows`].
     Inlet(u8),
@@ -77,18 +78,28 @@ pub enum BiasTarget {
 
 /// Raw observer configuration (SI units).
 #[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(
+    feature = "serde",
+    derive(serde::Serialize, serde::Deserialize),
+    serde(bound(
+        serialize = "S: serde::Serialize",
+        deserialize = "S: serde::Deserialize<'de> + Copy + Default"
+    ))
+)]
 pub struct ObserverSpec<S, const N: usize> {
     /// Standard deviation of the level transmitter, m.
     pub level_sigma: S,
     /// Process noise density of the holdup, m⁶/s (variance added per second).
     pub volume_noise: S,
     /// Process noise density of each amount, mol²/s.
+    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
     pub amount_noise: [S; N],
     /// Random-walk density of each meter bias, 1/s (relative² per second).
     pub bias_noise: S,
     /// Initial standard deviation of the holdup, m³.
     pub initial_volume_sigma: S,
     /// Initial standard deviation of each amount, mol.
+    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
     pub initial_amount_sigma: [S; N],
     /// Initial standard deviation of each bias (relative).
     pub initial_bias_sigma: S,
@@ -124,6 +135,7 @@ pub enum Update<S> {
 /// Counters since start (for reports and diagnostics).
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub struct ObserverCounters {
     /// Level values fused.
     pub level_accepted: u32,
@@ -146,16 +158,66 @@ pub struct ObserverCounters {
 }
 
 /// A lab sample waiting for its result.
-#[derive(Clone, Debug)]
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(
+    feature = "serde",
+    derive(serde::Serialize, serde::Deserialize),
+    serde(bound(
+        serialize = "S: serde::Serialize",
+        deserialize = "S: serde::Deserialize<'de> + Copy + Default"
+    ))
+)]
 struct Pending<S, const D: usize> {
     id: u32,
     drawn_ms: Millis,
     predicted: S,
     /// `P_s Hᵀ` (prior at the draw).
+    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
     ph: [S; D],
     /// Innovation variance `H P_s Hᵀ + r`.
     s: S,
+    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays::matrix"))]
     m: [[S; D]; D],
+}
+
+/// An observer's state without its configuration: the vessel's balance
+/// state, the bias estimates, the covariance, the pending lab samples and
+/// the counters. What a checkpoint stores ([`Observer::state`],
+/// [`Observer::restore_state`]).
+#[derive(Clone, Debug, PartialEq)]
+#[cfg_attr(
+    feature = "serde",
+    derive(serde::Serialize, serde::Deserialize),
+    serde(bound(
+        serialize = "S: serde::Serialize",
+        deserialize = "S: serde::Deserialize<'de> + Copy + Default"
+    ))
+)]
+pub struct ObserverState<S, const N: usize, const D: usize, const L: usize> {
+    vessel: VesselState<S, N>,
+    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
+    bias: [S; D],
+    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays::matrix"))]
+    p: [[S; D]; D],
+    pending: Vec<Pending<S, D>, L>,
+    counters: ObserverCounters,
+}
+
+impl<S: Scalar, const N: usize, const D: usize, const L: usize> ObserverState<S, N, D, L> {
+    /// The vessel part.
+    pub fn vessel(&self) -> &VesselState<S, N> {
+        &self.vessel
+    }
+
+    /// The counters.
+    pub fn counters(&self) -> ObserverCounters {
+        self.counters
+    }
+
+    /// Number of pending lab samples.
+    pub fn pending_lab_samples(&self) -> usize {
+        self.pending.len()
+    }
 }
 
 /// The extended Kalman filter around a [`Vessel`]. `D = 1 + N + B` states,
@@ -385,6 +447,81 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
     /// Number of lab samples waiting for their result.
     pub fn pending_lab_samples(&self) -> usize {
         self.pending.len()
+    }
+
+    /// The state without the configuration (for a checkpoint).
+    pub fn state(&self) -> ObserverState<S, N, D, L> {
+        ObserverState {
+            vessel: self.vessel.state(),
+            bias: self.bias,
+            p: self.p,
+            pending: self.pending.clone(),
+            counters: self.counters,
+        }
+    }
+
+    /// Check that `state` could be this observer's: the vessel part as
+    /// [`Vessel::check_state`]; biases finite (zero beyond the configured
+    /// ones); the covariance finite, exactly symmetric (as every update
+    /// leaves it) with a positive diagonal, and positive definite; each
+    /// pending sample finite, with a positive innovation variance, drawn no
+    /// later than the state's time.
+    ///
+    /// Errors: [`Error::CheckpointInvalidState`].
+    pub fn check_state(&self, state: &ObserverState<S, N, D, L>) -> Result<(), Error> {
+        self.vessel.check_state(&state.vessel)?;
+        let biases = D - 1 - N;
+        let bias_ok = state
+            .bias
+            .iter()
+            .enumerate()
+            .all(|(j, &b)| b.is_finite() && (j < biases || b == S::ZERO));
+        let p = &state.p;
+        let mut cov_ok = p.iter().flatten().all(|x| x.is_finite());
+        for (i, row) in p.iter().enumerate() {
+            for (j, &x) in row.iter().enumerate() {
+                let mirrored = p.get(j).and_then(|r| r.get(i)).copied();
+                if mirrored != Some(x) || (i == j && !(x > S::ZERO)) {
+                    cov_ok = false;
+                }
+            }
+        }
+        let cov_ok = cov_ok && is_positive_definite(p);
+        let now = state.vessel.time_ms();
+        let pending_ok = state.pending.iter().all(|pd| {
+            pd.predicted.is_finite()
+                && pd.s.is_finite()
+                && pd.s > S::ZERO
+                && pd.ph.iter().all(|x| x.is_finite())
+                && pd.m.iter().flatten().all(|x| x.is_finite())
+                && pd.drawn_ms <= now
+        });
+        if bias_ok && cov_ok && pending_ok {
+            Ok(())
+        } else {
+            Err(Error::CheckpointInvalidState)
+        }
+    }
+
+    /// Replace the state by `state` after [`Observer::check_state`]; on
+    /// error nothing changes. The observer then continues exactly as the
+    /// one that produced `state` would have (bit for bit, in the same
+    /// build).
+    ///
+    /// Errors: [`Error::CheckpointInvalidState`].
+    pub fn restore_state(&mut self, state: &ObserverState<S, N, D, L>) -> Result<(), Error> {
+        self.check_state(state)?;
+        self.vessel.restore_state(&state.vessel)?;
+        self.bias = state.bias;
+        self.p = state.p;
+        self.pending = state.pending.clone();
+        self.counters = state.counters;
+        Ok(())
+    }
+
+    /// The configuration.
+    pub fn spec(&self) -> &ObserverSpec<S, N> {
+        &self.spec
     }
 
     /// The inputs with each biased meter corrected: `q·(1 − β)`.

@@ -188,6 +188,7 @@ impl_scalar!(f64, exp, expm1, log, log1p, pow, sqrt, cbrt, acos, fabs);
 /// lose most of the increment's digits, and the loss accumulates over a year of
 /// ticks. The accumulator keeps the lost part and folds it back in.
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub struct Compensated<S> {
     hi: S,
     lo: S,
@@ -220,6 +221,12 @@ impl<S: Scalar> Compensated<S> {
         let hi = s + lo;
         self.lo = lo - (hi - s);
         self.hi = hi;
+    }
+
+    /// The high and low words (for checkpoints).
+    #[inline]
+    pub(crate) fn parts(&self) -> (S, S) {
+        (self.hi, self.lo)
     }
 
     /// Replace the total by `x` (dropping any pending correction).

@@ -44,6 +44,52 @@ pub struct InitialState<S, const N: usize> {
     pub temperature: S,
 }
 
+/// A vessel's balance state and time without its model: what a checkpoint
+/// stores ([`Vessel::state`], [`Vessel::restore_state`]). Built only from a
+/// vessel or by decoding; checked against the model before it is installed.
+#[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(
+    feature = "serde",
+    derive(serde::Serialize, serde::Deserialize),
+    serde(bound(
+        serialize = "S: serde::Serialize",
+        deserialize = "S: serde::Deserialize<'de> + Copy + Default"
+    ))
+)]
+pub struct VesselState<S, const N: usize> {
+    volume: Compensated<S>,
+    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
+    amounts: [Compensated<S>; N],
+    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
+    held: [S; N],
+    temperature: S,
+    time_ms: Millis,
+}
+
+impl<S: Scalar, const N: usize> VesselState<S, N> {
+    /// Time of the state, ms.
+    pub fn time_ms(&self) -> Millis {
+        self.time_ms
+    }
+
+    /// Holdup, m³.
+    pub fn volume(&self) -> S {
+        self.volume.value()
+    }
+}
+
+/// A compensated total with finite words, a low word within rounding of the
+/// high one, and a value of at least `min`.
+fn total_ok<S: Scalar>(t: &Compensated<S>, min: S) -> bool {
+    let (hi, lo) = t.parts();
+    let v = t.value();
+    hi.is_finite()
+        && lo.is_finite()
+        && v.is_finite()
+        && v >= min
+        && !(lo.abs() > hi.abs() * S::EPSILON + S::MIN_POSITIVE)
+}
+
 /// A vessel: validated model, balance state and integer time.
 #[derive(Clone, Debug)]
 pub struct Vessel<S, const N: usize, const R: usize, const O: usize> {
@@ -184,6 +230,57 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
             self.held = self.concentrations();
         }
         clamped
+    }
+
+    /// The balance state and time (for a checkpoint).
+    pub fn state(&self) -> VesselState<S, N> {
+        VesselState {
+            volume: self.volume,
+            amounts: self.amounts,
+            held: self.held,
+            temperature: self.temperature,
+            time_ms: self.time_ms,
+        }
+    }
+
+    /// Check that `state` could be this vessel's: every number finite,
+    /// holdup within `[0, capacity]` (to rounding), amounts and held
+    /// concentrations non-negative, temperature positive, time a whole
+    /// number of ticks.
+    ///
+    /// Errors: [`Error::CheckpointInvalidState`].
+    pub fn check_state(&self, state: &VesselState<S, N>) -> Result<(), Error> {
+        let cap = self.model.capacity * (S::ONE + S::of(4.0) * S::EPSILON);
+        let ok = total_ok(&state.volume, S::ZERO)
+            && state.volume.value() <= cap
+            && state.amounts.iter().all(|a| total_ok(a, S::ZERO))
+            && state.held.iter().all(|&c| c.is_finite() && c >= S::ZERO)
+            && state.temperature.is_finite()
+            && state.temperature > S::ZERO
+            && state
+                .time_ms
+                .checked_rem(u64::from(self.model.tick_ms))
+                .is_some_and(|r| r == 0);
+        if ok {
+            Ok(())
+        } else {
+            Err(Error::CheckpointInvalidState)
+        }
+    }
+
+    /// Replace the balance state and time by `state` after
+    /// [`Vessel::check_state`]; on error nothing changes. The next tick
+    /// continues exactly as the vessel that produced `state` would have.
+    ///
+    /// Errors: [`Error::CheckpointInvalidState`].
+    pub fn restore_state(&mut self, state: &VesselState<S, N>) -> Result<(), Error> {
+        self.check_state(state)?;
+        self.volume = state.volume;
+        self.amounts = state.amounts;
+        self.held = state.held;
+        self.temperature = state.temperature;
+        self.time_ms = state.time_ms;
+        Ok(())
     }
 
     /// The holdup at or below which concentrations are not formed: the

@@ -212,3 +212,19 @@ pub fn reference_tick() -> TickFlops {
     }
     f
 }
+
+/// The observed scenario's tick: predict, level update, lab event (the
+/// readings are made outside the counted part, in `f32`, and widened).
+pub fn observer_tick(level_knots: &[f32], lab_values: &[f32]) -> TickFlops {
+    use super::observed::{observe, Instruments, Tracked, OBS_TICKS};
+    let mut t = Tracked::<Counted>::new().expect("observer");
+    let mut inst = Instruments::new(level_knots, lab_values);
+    let mut f = TickFlops::new();
+    for n in 0..OBS_TICKS {
+        let r = inst.readings(n).cast::<Counted>();
+        take();
+        observe(&mut t, &r);
+        f.record(take());
+    }
+    f
+}

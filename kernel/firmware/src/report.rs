@@ -171,6 +171,52 @@ impl Report {
         );
     }
 
+    /// One check's outcome, with what was measured, its tolerance and unit:
+    /// `check <name>: <points> checkpoints, <what> <measured> (tolerance
+    /// <tol> <unit>) pass|FAIL`.
+    #[allow(clippy::too_many_arguments)]
+    pub fn check_value(
+        &mut self,
+        name: &str,
+        points: u32,
+        what: &str,
+        measured: f32,
+        tol: f32,
+        unit: &str,
+        pass: bool,
+    ) {
+        let verdict = if pass { "pass" } else { "FAIL" };
+        #[cfg(not(feature = "defmt"))]
+        self.emit(
+            Line::new()
+                .str("check ")
+                .str(name)
+                .str(": ")
+                .u32(points)
+                .str(" checkpoints, ")
+                .str(what)
+                .str(" ")
+                .f32(measured)
+                .str(" (tolerance ")
+                .f32(tol)
+                .str(" ")
+                .str(unit)
+                .str(") ")
+                .str(verdict),
+        );
+        #[cfg(feature = "defmt")]
+        defmt::println!(
+            "check {=str}: {=u32} checkpoints, {=str} {=f32} (tolerance {=f32} {=str}) {=str}",
+            name,
+            points,
+            what,
+            measured,
+            tol,
+            unit,
+            verdict
+        );
+    }
+
     /// A named value with a unit.
     pub fn value(&mut self, name: &str, x: f32, unit: &str) {
         #[cfg(not(feature = "defmt"))]

@@ -1,9 +1,9 @@
 //! The fixed-tick loop and what it runs.
 //!
-//! [`Estimator`] is one tick of whatever the gateway estimates: today the
-//! open-loop kernel tick ([`holdup_kernel::Vessel::step`]); the observer
-//! (level and lab correction) implements the same trait when it exists, and
-//! is then measured by the same loop.
+//! [`Estimator`] is one tick of whatever the gateway estimates: the
+//! open-loop kernel tick ([`holdup_kernel::Vessel::step`]) or the observer's
+//! tick ([`crate::observed::observe`]: predict, level update, lab event);
+//! both are measured by the same loop.
 //!
 //! [`run`] is the gateway's main loop: take the tick's inputs, step, measure
 //! the step's cost, wait out the rest of the tick with an
@@ -15,11 +15,22 @@ use embedded_hal::delay::DelayNs;
 use holdup_kernel::{Inputs, Scalar, StatusFlags, StepReport, Vessel};
 
 use crate::meter::{self, Meter};
+use crate::observed::{observe, Lab, Readings, Tracked};
 
 /// One tick of an estimator with inputs `U`.
 pub trait Estimator<U> {
     /// Advance one tick.
     fn tick(&mut self, u: &U) -> StepReport<f32>;
+    /// Whether the coming tick belongs to the estimator's dearer kind
+    /// (counted apart in [`Stats`]): the observer with a lab sample pending.
+    fn busy(&self) -> bool {
+        false
+    }
+    /// Whether the stack of the tick with inputs `u` must be measured even
+    /// off the checkpoints (a rare event: a lab draw or result).
+    fn sample_stack(&self, _u: &U) -> bool {
+        false
+    }
 }
 
 impl<const N: usize, const R: usize, const O: usize, const I: usize> Estimator<Inputs<f32, N, I, O>>
@@ -28,6 +39,21 @@ impl<const N: usize, const R: usize, const O: usize, const I: usize> Estimator<I
     #[inline(always)]
     fn tick(&mut self, u: &Inputs<f32, N, I, O>) -> StepReport<f32> {
         self.step(u)
+    }
+}
+
+impl Estimator<Readings<f32>> for Tracked<f32> {
+    #[inline(always)]
+    fn tick(&mut self, r: &Readings<f32>) -> StepReport<f32> {
+        observe(self, r)
+    }
+
+    fn busy(&self) -> bool {
+        self.obs.pending_lab_samples() > 0
+    }
+
+    fn sample_stack(&self, r: &Readings<f32>) -> bool {
+        r.lab != Lab::None
     }
 }
 
@@ -60,6 +86,10 @@ pub struct Stats {
     pub stack: usize,
     /// Union of the ticks' status flags.
     pub flags: StatusFlags,
+    /// Ticks for which [`Estimator::busy`] held before the tick.
+    pub busy_ticks: u32,
+    /// Their summed cost, meter units.
+    pub busy_sum: u64,
 }
 
 impl Stats {
@@ -69,6 +99,15 @@ impl Stats {
             0.0
         } else {
             (self.sum as f64 / f64::from(self.ticks)) as f32
+        }
+    }
+
+    /// Mean cost of the busy ticks.
+    pub fn busy_mean(&self) -> f32 {
+        if self.busy_ticks == 0 {
+            0.0
+        } else {
+            (self.busy_sum as f64 / f64::from(self.busy_ticks)) as f32
         }
     }
 }
@@ -88,7 +127,8 @@ fn step_once<U, E: Estimator<U>>(est: &mut E, u: &U) -> StepReport<f32> {
 /// Run `ticks` ticks of `period_ns` each. `inputs(n)` gives tick `n`'s
 /// inputs (from 0); `checkpoint(n, est)` is called after tick `n` (from 1)
 /// when `n % every == 0`, and that tick's stack is measured (painting is
-/// outside the measured window).
+/// outside the measured window), as is the stack of every tick for which
+/// [`Estimator::sample_stack`] holds.
 #[allow(clippy::too_many_arguments)]
 pub fn run<U, E, M, D>(
     est: &mut E,
@@ -114,10 +154,14 @@ where
         sum: 0,
         stack: 0,
         flags: StatusFlags::NONE,
+        busy_ticks: 0,
+        busy_sum: 0,
     };
     for n in 0..ticks {
         let u = inputs(n);
-        let sampled = every > 0 && (n + 1) % every == 0;
+        let checkpoint_due = every > 0 && (n + 1) % every == 0;
+        let sampled = checkpoint_due || est.sample_stack(&u);
+        let busy = est.busy();
         let sp = meter::stack_pointer();
         let low = sp.saturating_sub(PAINT_DEPTH).max(stack_bottom);
         let top = sp.saturating_sub(PAINT_MARGIN);
@@ -130,6 +174,8 @@ where
         if sampled {
             let touched = meter::lowest_touched(low, top);
             st.stack = st.stack.max(sp.saturating_sub(touched));
+        }
+        if checkpoint_due {
             checkpoint(n + 1, est);
         }
         let cost = meter.units(t0, t1).saturating_sub(overhead);
@@ -138,8 +184,12 @@ where
         st.max = st.max.max(cost);
         st.sum += u64::from(cost);
         st.flags |= rep.flags;
-        let busy = cost.saturating_mul(meter.ns_per_unit());
-        delay.delay_ns(period_ns.saturating_sub(busy));
+        if busy {
+            st.busy_ticks += 1;
+            st.busy_sum += u64::from(cost);
+        }
+        let spent = cost.saturating_mul(meter.ns_per_unit());
+        delay.delay_ns(period_ns.saturating_sub(spent));
     }
     st
 }

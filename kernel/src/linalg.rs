@@ -133,29 +133,31 @@ pub(crate) fn mat_mul<S: Scalar, const N: usize>(a: &[[S; N]; N], b: &[[S; N]; N
     out
 }
 
-/// True when the symmetric matrix `p` has a Cholesky factor with a margin
-/// (is positive definite beyond rounding) and only finite entries: every
-/// pivot must exceed `16ε` times its diagonal entry, so that a matrix the
-/// working precision cannot tell from singular is not passed (an `f32`
-/// Cholesky without margin accepts matrices whose exact factorisation
-/// fails). `N³/6` multiply-adds, no allocation.
+/// True when the symmetric matrix `p` is positive definite beyond rounding
+/// and has only finite entries: in its `L·D·Lᵀ` factorisation every pivot
+/// must exceed `16ε` times its diagonal entry, so that a matrix the working
+/// precision cannot tell from singular is not passed (a plain `f32`
+/// factorisation accepts matrices whose exact one fails). The `LDLᵀ` form
+/// needs no square root (a software routine on the Cortex-M4F).
+/// `N³/6` multiply-adds, no allocation.
 pub(crate) fn is_positive_definite<S: Scalar, const N: usize>(p: &[[S; N]; N]) -> bool {
     let margin = S::of(16.0) * S::EPSILON;
+    // l[i][k] for k < i (unit lower triangle), d[k] the pivots.
     let mut l = [[S::ZERO; N]; N];
+    let mut d = [S::ZERO; N];
     for j in 0..N {
-        let mut d = p[j][j];
+        let mut dj = p[j][j];
         for k in 0..j {
-            d -= l[j][k] * l[j][k];
+            dj -= l[j][k] * l[j][k] * d[k];
         }
-        if !(d > margin * p[j][j]) || !(d > S::ZERO) || !d.is_finite() {
+        if !(dj > margin * p[j][j]) || !(dj > S::ZERO) || !dj.is_finite() {
             return false;
         }
-        let dj = d.sqrt();
-        l[j][j] = dj;
+        d[j] = dj;
         for i in j + 1..N {
             let mut s = p[i][j];
             for k in 0..j {
-                s -= l[i][k] * l[j][k];
+                s -= l[i][k] * l[j][k] * d[k];
             }
             l[i][j] = s / dj;
             if !l[i][j].is_finite() {

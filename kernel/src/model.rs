@@ -309,6 +309,9 @@ pub struct Model<S, const N: usize, const R: usize, const O: usize> {
     pub(crate) min_holdup: S,
     pub(crate) capacity: S,
     pub(crate) tick_ms: u32,
+    /// The tick in seconds, converted once (the conversion goes through
+    /// `f64`, which is software arithmetic on the Cortex-M4F).
+    pub(crate) tick_s: S,
     pub(crate) method: Method,
     /// The network is linear and uncoupled (the exact step applies).
     pub(crate) exact_class: bool,
@@ -460,6 +463,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
             min_holdup: spec.min_holdup,
             capacity,
             tick_ms: spec.tick_ms,
+            tick_s: crate::units::seconds(spec.tick_ms),
             method: spec.method,
             exact_class,
             has_computed_outlets,
@@ -484,6 +488,11 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
     /// Tick length, ms.
     pub fn tick_ms(&self) -> u32 {
         self.tick_ms
+    }
+
+    /// Tick length, s.
+    pub fn tick_s(&self) -> S {
+        self.tick_s
     }
 
     /// Configured integrator.

@@ -53,7 +53,7 @@ use heapless::Vec;
 
 use crate::linalg::{is_positive_definite, mat_mul, solve_matrix};
 use crate::model::Inputs;
-use crate::units::{seconds, Millis};
+use crate::units::Millis;
 use crate::vessel::{Vessel, VesselState};
 use crate::{Error, Scalar, StepReport};
 
@@ -263,16 +263,6 @@ fn identity<S: Scalar, const D: usize>() -> [[S; D]; D] {
         row[i] = S::ONE;
     }
     m
-}
-
-fn transpose<S: Scalar, const D: usize>(a: &[[S; D]; D]) -> [[S; D]; D] {
-    let mut t = [[S::ZERO; D]; D];
-    for i in 0..D {
-        for j in 0..D {
-            t[j][i] = a[i][j];
-        }
-    }
-    t
 }
 
 fn mat_vec<S: Scalar, const D: usize>(a: &[[S; D]; D], v: &[S; D]) -> [S; D] {
@@ -626,7 +616,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
     /// with bias-corrected flows for the mean, the Cayley transition for the
     /// covariance. Returns the kernel's report.
     pub fn tick<const I: usize>(&mut self, u: &Inputs<S, N, I, O>) -> StepReport<S> {
-        let h: S = seconds(self.vessel.model().tick_ms());
+        let h: S = self.vessel.model().tick_s();
         let uc = self.corrected(u);
         let f = self.jacobian(&uc, u);
         // Φ = (I − hF/2)⁻¹ (I + hF/2)
@@ -649,7 +639,20 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
                 }
             }
         }
-        let mut p = mat_mul(&mat_mul(&phi, &self.p), &transpose(&phi));
+        // Φ P Φᵀ: T = Φ P, then only the upper triangle of T Φᵀ (the result
+        // is symmetric), mirrored.
+        let t = mat_mul(&phi, &self.p);
+        let mut p = [[S::ZERO; D]; D];
+        for i in 0..D {
+            for j in i..D {
+                let mut x = S::ZERO;
+                for (a, b) in t[i].iter().zip(phi[j].iter()) {
+                    x += *a * *b;
+                }
+                p[i][j] = x;
+                p[j][i] = x;
+            }
+        }
         p[0][0] += self.spec.volume_noise * h;
         for i in 0..N {
             p[1 + i][1 + i] += self.spec.amount_noise[i] * h;
@@ -754,17 +757,20 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         for (ki, phi) in k.iter_mut().zip(ph.iter()) {
             *ki = *phi / s;
         }
-        // A = I − K H
-        let mut a = identity::<S, D>();
+        // Joseph form P ← A P Aᵀ + K r Kᵀ with A = I − K Hᵀ, evaluated with
+        // the rank-one structure of A in O(D²) instead of two D×D products:
+        // B = A P = P − K (Hᵀ P) (Hᵀ P = (P H)ᵀ, P symmetric), then
+        // B Aᵀ = B − (B H) Kᵀ. Same arithmetic terms as the products.
+        let mut p = self.p;
         for i in 0..D {
             for j in 0..D {
-                a[i][j] -= k[i] * h[j];
+                p[i][j] -= k[i] * ph[j];
             }
         }
-        let mut p = mat_mul(&mat_mul(&a, &self.p), &transpose(&a));
+        let bh = mat_vec(&p, h);
         for i in 0..D {
             for j in 0..D {
-                p[i][j] += k[i] * r * k[j];
+                p[i][j] += k[j] * (r * k[i] - bh[i]);
             }
         }
         symmetrize(&mut p);
@@ -772,8 +778,19 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
             self.counters.covariance_guarded = self.counters.covariance_guarded.saturating_add(1);
         }
         self.p = p;
+        // M ← A M = M − K (Hᵀ M), also O(D²).
         for pend in self.pending.iter_mut() {
-            pend.m = mat_mul(&a, &pend.m);
+            let mut hm = [S::ZERO; D];
+            for (c, hmc) in hm.iter_mut().enumerate() {
+                for (row, hi) in pend.m.iter().zip(h.iter()) {
+                    *hmc += *hi * row[c];
+                }
+            }
+            for (row, ki) in pend.m.iter_mut().zip(k.iter()) {
+                for (x, hmc) in row.iter_mut().zip(hm.iter()) {
+                    *x -= *ki * *hmc;
+                }
+            }
         }
         Some(Ok((k, ph, s)))
     }

@@ -30,7 +30,7 @@
 use crate::integrate::{euler_step, exact, rk4_step, split_step, TickFrame, TickRhs};
 use crate::model::{Inputs, Method, Model, Outlet};
 use crate::status::{MethodUsed, StatusFlags, StepReport};
-use crate::units::{seconds, Millis};
+use crate::units::Millis;
 use crate::{Compensated, Error, Scalar};
 
 /// The state a vessel starts from.
@@ -293,7 +293,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
     /// module documentation for what is clamped and flagged.
     pub fn step<const I: usize>(&mut self, u: &Inputs<S, N, I, O>) -> StepReport<S> {
         let mut rep = StepReport::default();
-        let h: S = seconds(self.model.tick_ms);
+        let h: S = self.model.tick_s;
 
         // 1. Inputs.
         let mut q_in = S::ZERO;

@@ -204,8 +204,8 @@ fn long_compressed(rows: &[(i64, [f64; 5])]) -> String {
 }
 
 /// The dense moving log with faults put in: a NaN run on FI-1, FI-2 frozen
-/// for 40 minutes, a duplicated row, a row going back in time, and a
-/// 20-minute hole.
+/// for 40 minutes, a duplicated row, a row going back in time, a 20-minute
+/// hole, and a negative spike of four rows on FI-2.
 fn faulty_log() -> String {
     let rows = moving_rows(900);
     let mut s = format!("time,{}\n", MOVING_TAGS.join(","));
@@ -221,6 +221,8 @@ fn faulty_log() -> String {
         };
         let fi2 = if (300..540).contains(&k) {
             frozen
+        } else if (760..764).contains(&k) {
+            -0.5 // a negative spike (meter glitch)
         } else {
             v[1]
         };
@@ -434,8 +436,13 @@ fn faulty_log_completes_and_reports_every_fault() {
             .cloned()
             .unwrap_or_else(|| panic!("no stats for {name}"))
     };
-    // NaN run: 30 rows of FI-1.
+    // NaN run: 30 rows of FI-1, reported as one window (marked on the plots).
     assert_eq!(tag("FI-1")["missing"]["total"], 30, "{text}");
+    assert_eq!(tag("FI-1")["missing_runs"]["total"], 1, "{text}");
+    assert_eq!(tag("FI-1")["missing_runs"]["total_ms"], 290_000, "{text}");
+    // Negative spike: 4 rows of FI-2 clamped to zero, one window.
+    assert_eq!(tag("FI-2")["clamped"]["total"], 4, "{text}");
+    assert_eq!(tag("FI-2")["clamped_runs"]["total"], 1, "{text}");
     // Flat-lined meter: FI-2 frozen for 40 minutes (> 30 min default).
     assert_eq!(tag("FI-2")["flat_lines"]["total"], 1, "{text}");
     // Duplicate and backwards timestamps.

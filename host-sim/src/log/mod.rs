@@ -558,6 +558,7 @@ impl LogReader {
                     if let Some(ts) = self.stats.tags.get_mut(k) {
                         ts.missing
                             .push(line, Some(t), None, || missing_detail(&why, cell));
+                        stats::extend_run(&mut ts.open_missing, t, line);
                     }
                 }
             }
@@ -624,6 +625,7 @@ impl LogReader {
             Err(why) => {
                 ts.missing
                     .push(line, Some(t), None, || missing_detail(&why, cell));
+                stats::extend_run(&mut ts.open_missing, t, line);
                 Ok(())
             }
         }
@@ -690,9 +692,13 @@ impl LogReader {
             return Ok(());
         };
         let mut v = raw;
+        stats::close_run(&mut ts.open_missing, &mut ts.missing_runs);
         if s.non_negative && raw < 0.0 {
             ts.clamped.push(line, Some(t), Some(raw), String::new);
+            stats::extend_run(&mut ts.open_clamped, t, line);
             v = 0.0;
+        } else {
+            stats::close_run(&mut ts.open_clamped, &mut ts.clamped_runs);
         }
         let point = Point { t, v, line };
         // Flat lines: analog (linear) tags only, a discrete signal is meant
@@ -765,6 +771,8 @@ impl LogReader {
             if let Some(run) = s.flat.take() {
                 close_flat(&run, self.flat_line_ms, ts);
             }
+            stats::close_run(&mut ts.open_missing, &mut ts.missing_runs);
+            stats::close_run(&mut ts.open_clamped, &mut ts.clamped_runs);
         }
     }
 }

@@ -135,8 +135,43 @@ pub struct TagStats {
     /// longer than the flat-line age, recorded when the run ends (or at the
     /// end of the log).
     pub flat_lines: WindowList,
+    /// Runs of consecutive rows where this tag's value was missing (from the
+    /// first to the last missing row of the run), for marking on plots.
+    pub missing_runs: WindowList,
+    /// Runs of consecutive negative values clamped to zero.
+    pub clamped_runs: WindowList,
     /// States returned by `sample` (`ticks.stale` is the stale-tick count).
     pub ticks: StateTicks,
+    /// The missing-value run still open (closed by the next valid value or
+    /// the end of the log).
+    pub(crate) open_missing: Option<Window>,
+    /// The clamped run still open.
+    pub(crate) open_clamped: Option<Window>,
+}
+
+/// Extend the open run `open` with a row at `t`, `line`.
+pub(crate) fn extend_run(open: &mut Option<Window>, t: i64, line: u64) {
+    match open {
+        Some(w) => {
+            w.end = t;
+            w.end_line = line;
+        }
+        None => {
+            *open = Some(Window {
+                start: t,
+                end: t,
+                start_line: line,
+                end_line: line,
+            })
+        }
+    }
+}
+
+/// Close the open run into `list`.
+pub(crate) fn close_run(open: &mut Option<Window>, list: &mut WindowList) {
+    if let Some(w) = open.take() {
+        list.push(w);
+    }
 }
 
 /// Everything the reader counted.
@@ -200,6 +235,18 @@ impl LogStats {
                     .first
                     .iter()
                     .map(|w| (w.start, w.end, "flat line")),
+            );
+            out.extend(
+                t.missing_runs
+                    .first
+                    .iter()
+                    .map(|w| (w.start, w.end, "missing values")),
+            );
+            out.extend(
+                t.clamped_runs
+                    .first
+                    .iter()
+                    .map(|w| (w.start, w.end, "negative values clamped")),
             );
         }
         out.sort_unstable();
@@ -307,6 +354,18 @@ impl LogStats {
                     "flat line",
                     "flat lines",
                 ),
+                (
+                    &t.missing_runs,
+                    "of missing values".to_string(),
+                    "run",
+                    "runs",
+                ),
+                (
+                    &t.clamped_runs,
+                    "of negative values clamped to zero".to_string(),
+                    "run",
+                    "runs",
+                ),
             ];
             for (list, limit, one, many) in windows {
                 if list.total > 0 {
@@ -386,6 +445,7 @@ impl LogStats {
             "missing": faults(&t.missing), "duplicates": faults(&t.duplicates), "clamped": faults(&t.clamped),
             "bad_quality": faults(&t.bad_quality), "uncertain_quality": faults(&t.uncertain_quality),
             "gaps": windows(&t.gaps), "flat_lines": windows(&t.flat_lines),
+            "missing_runs": windows(&t.missing_runs), "clamped_runs": windows(&t.clamped_runs),
             "ticks": {"exact": t.ticks.exact, "interpolated": t.ticks.interpolated, "held": t.ticks.held,
                       "stale": t.ticks.stale, "missing": t.ticks.missing},
         })).collect();

@@ -700,11 +700,20 @@ fn every_wide_fault_is_counted_at_its_line() {
             .starts_with("test.csv: 56 rows read (wide format, ISO 8601 timestamps), 3 rejected"),
         "{text:#?}"
     );
-    // For plots: the row gap once (both analog tags had it), the flat line.
+    // For plots: the flat line, the NaN run and the empty cell (runs of
+    // missing values), the negative flow, and the row gap once (both analog
+    // tags had it).
     assert_eq!(
         st.fault_windows(),
         [
             (T0, T0 + 40 * MIN, "flat line".to_string()),
+            (T0 + 5 * MIN, T0 + 7 * MIN, "missing values".to_string()),
+            (T0 + 12 * MIN, T0 + 12 * MIN, "missing values".to_string()),
+            (
+                T0 + 15 * MIN,
+                T0 + 15 * MIN,
+                "negative values clamped".to_string()
+            ),
             (T0 + 45 * MIN, T0 + 65 * MIN, "data gap".to_string()),
         ]
     );

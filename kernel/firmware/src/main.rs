@@ -185,6 +185,10 @@ fn run(out: &mut Report, cp: cortex_m::Peripherals) -> bool {
     pass &= analytic(out, &meter, &mut delay);
     pass &= reference_run(out, &meter, &mut delay);
     pass &= observed_run(out, &meter, &mut delay);
+    #[cfg(feature = "checkpoint")]
+    {
+        pass &= checkpoint_run(out);
+    }
 
     #[cfg(not(feature = "board"))]
     out.value(
@@ -360,6 +364,62 @@ fn reference_run(out: &mut Report, meter: &platform::Meter, delay: &mut platform
 /// The reference shift with the observer: checked against the host's `f32`
 /// observer (bit for bit), against the plant (NaOH, the caustic meter's
 /// bias) and against the open-loop kernel on the same readings.
+/// Checkpoint round trip on the target: run the observer with a lab sample
+/// pending, save it twice into a RAM-backed store (two slots), restore into
+/// a freshly configured observer, then continue both; the two trajectories
+/// must be bit-identical (the kernel's restore-then-continue property). With
+/// `panic-link-check` this also puts the save and restore paths under the
+/// no-panic gate.
+#[cfg(feature = "checkpoint")]
+fn checkpoint_run(out: &mut Report) -> bool {
+    use holdup_kernel::checkpoint::Checkpoints;
+    use holdup_kernel::storage::MemStorage;
+    let (Ok(mut a), Ok(mut b)) = (observed::observer::<f32>(), observed::observer::<f32>()) else {
+        out.line("checkpoint: configuration rejected");
+        return false;
+    };
+    let step = |o: &mut RefObserver<f32>, k: u32| {
+        let u = reference::inputs_at::<f32>(u64::from(k) * u64::from(reference::TICK_MS));
+        let _ = o.tick(&u);
+        let z = o.vessel().level();
+        let _ = o.update_level(z * (1.0 + 1e-4 * (k % 7) as f32));
+    };
+    for k in 0..600 {
+        step(&mut a, k);
+    }
+    let drawn = a.lab_drawn(1, 0, 0.1).is_ok();
+    for k in 600..700 {
+        step(&mut a, k);
+    }
+    let mut mem = [0u8; 1024];
+    let mut scratch = [0u8; 512];
+    let mut store = MemStorage::new(&mut mem);
+    let slots = Checkpoints::new(0, 512);
+    let saved = slots.save(&a, &mut store, &mut scratch).is_ok()
+        && slots.save(&a, &mut store, &mut scratch).is_ok();
+    let restored = slots.restore_into(&mut b, &mut store, &mut scratch).is_ok();
+    let result_ok = a.lab_result(1, 7.0).is_ok() && b.lab_result(1, 7.0).is_ok();
+    let mut same = true;
+    for k in 700..1300 {
+        step(&mut a, k);
+        step(&mut b, k);
+        let (sa, sb) = (observed::state5(&a), observed::state5(&b));
+        same &= sa
+            .iter()
+            .zip(sb.iter())
+            .all(|(x, y)| x.to_bits() == y.to_bits());
+    }
+    let pass = drawn && saved && restored && result_ok && same;
+    out.check(
+        "checkpoint save, restore, continue (observer, lab pending): bit-identical",
+        600,
+        if same { 0.0 } else { 1.0 },
+        0.0,
+        pass,
+    );
+    pass
+}
+
 fn observed_run(out: &mut Report, meter: &platform::Meter, delay: &mut platform::Delay) -> bool {
     let Ok(mut t) = Tracked::<f32>::new() else {
         out.line("observer: configuration rejected");

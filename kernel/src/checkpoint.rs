@@ -62,6 +62,7 @@ use serde::de::DeserializeOwned;
 use serde::Serialize;
 
 use crate::crc::{crc32, Crc32};
+use crate::diagnostics::{ClosureMonitor, NisMonitor};
 use crate::geometry::{Geometry, Shape};
 use crate::model::VesselSpec;
 use crate::observer::{Observer, ObserverSpec, ObserverState};
@@ -79,6 +80,10 @@ pub const HEADER_LEN: usize = 28;
 pub const KIND_VESSEL: u16 = 1;
 /// State kind of an [`Observer`] checkpoint.
 pub const KIND_OBSERVER: u16 = 2;
+/// State kind of a balance-closure monitor record.
+pub const KIND_CLOSURE: u16 = 3;
+/// State kind of a windowed-NIS monitor record.
+pub const KIND_NIS: u16 = 4;
 
 /// Something whose state can be checkpointed: it holds the configuration
 /// (which gives the fingerprint and checks a decoded state) and the state.
@@ -162,6 +167,68 @@ where
 
     fn install(&mut self, state: &Self::State) -> Result<(), Error> {
         self.restore_state(state)
+    }
+}
+
+impl<S> Checkpoint for ClosureMonitor<S>
+where
+    S: Scalar + Serialize + DeserializeOwned,
+{
+    type State = ClosureMonitor<S>;
+    const KIND: u16 = KIND_CLOSURE;
+
+    fn fingerprint(&self) -> Result<u32, Error> {
+        let sizes = [usize::from(Self::KIND), core::mem::size_of::<S>()];
+        fingerprint_of(&sizes, &self.config_key(), &())
+    }
+
+    fn snapshot(&self) -> Self::State {
+        *self
+    }
+
+    fn check(&self, state: &Self::State) -> Result<(), Error> {
+        if self.accepts(state) {
+            Ok(())
+        } else {
+            Err(Error::CheckpointInvalidState)
+        }
+    }
+
+    fn install(&mut self, state: &Self::State) -> Result<(), Error> {
+        self.check(state)?;
+        *self = *state;
+        Ok(())
+    }
+}
+
+impl<S, const W: usize> Checkpoint for NisMonitor<S, W>
+where
+    S: Scalar + Serialize + DeserializeOwned,
+{
+    type State = NisMonitor<S, W>;
+    const KIND: u16 = KIND_NIS;
+
+    fn fingerprint(&self) -> Result<u32, Error> {
+        let sizes = [usize::from(Self::KIND), core::mem::size_of::<S>(), W];
+        fingerprint_of(&sizes, &self.config_key(), &())
+    }
+
+    fn snapshot(&self) -> Self::State {
+        *self
+    }
+
+    fn check(&self, state: &Self::State) -> Result<(), Error> {
+        if self.accepts(state) {
+            Ok(())
+        } else {
+            Err(Error::CheckpointInvalidState)
+        }
+    }
+
+    fn install(&mut self, state: &Self::State) -> Result<(), Error> {
+        self.check(state)?;
+        *self = *state;
+        Ok(())
     }
 }
 

@@ -124,6 +124,7 @@ pub enum CusumSide {
 /// observations after the shift has gone, instead of after as many as it
 /// lasted. [`Cusum::reset`] clears it at once (acknowledge). A non-finite
 /// observation is skipped.
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Cusum<S> {
     k: S,
@@ -274,6 +275,7 @@ impl<S: Scalar> ClosureConfig<S> {
 }
 
 /// One closed window's residual.
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct WindowResidual<S> {
@@ -305,6 +307,7 @@ pub struct ClosureReport<S> {
 /// reading at the end of the `n`-th; if that reading is missing the window is
 /// lost (counted) and the next good reading starts a new one. A non-finite
 /// net flow loses the window too. Work per tick is constant.
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct ClosureMonitor<S> {
     window_ticks: u32,
@@ -319,6 +322,38 @@ pub struct ClosureMonitor<S> {
 }
 
 impl<S: Scalar> ClosureMonitor<S> {
+    #[cfg(feature = "serde")]
+    /// The configuration part of the monitor (window, σ of the residual,
+    /// `k`, `h`), for checkpoint fingerprints.
+    pub(crate) fn config_key(&self) -> (u32, S, S, S) {
+        (self.window_ticks, self.sigma, self.cusum.k, self.cusum.h)
+    }
+
+    #[cfg(feature = "serde")]
+    /// True when `state` (a decoded checkpoint) has this monitor's
+    /// configuration and a possible state: finite, sums non-negative, the
+    /// open window shorter than the window length.
+    pub(crate) fn accepts(&self, state: &Self) -> bool {
+        let same = |a: S, b: S| a.to_f64().to_bits() == b.to_f64().to_bits();
+        let (w, sg, k, h) = self.config_key();
+        let (w2, sg2, k2, h2) = state.config_key();
+        let fin = |x: S| x.is_finite();
+        w == w2
+            && same(sg, sg2)
+            && same(k, k2)
+            && same(h, h2)
+            && fin(state.cusum.upper)
+            && fin(state.cusum.lower)
+            && state.cusum.upper >= S::ZERO
+            && state.cusum.lower >= S::ZERO
+            && state.start.is_none_or(fin)
+            && fin(state.flow.value())
+            && state.ticks <= state.window_ticks
+            && state
+                .last
+                .is_none_or(|r| fin(r.volume) && fin(r.normalised))
+    }
+
     /// A monitor with no window open and the CUSUM at zero.
     ///
     /// # Errors
@@ -478,6 +513,7 @@ pub const EXACT_DOF: usize = 32;
 /// `f64` (64 bisections of at most 320 steps; bounded); do it at
 /// configuration time. [`ChiSquareBounds::lower`] and
 /// [`ChiSquareBounds::upper`] are constant-time.
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct ChiSquareBounds<S> {
     probability: S,
@@ -614,6 +650,7 @@ impl<S: Scalar> ChiSquareBounds<S> {
 // ---------------------------------------------------------------------------
 
 /// The consistency of an observer's innovations over the window.
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum NisState {
@@ -631,6 +668,7 @@ pub enum NisState {
 }
 
 /// What one [`NisMonitor::update`] reports.
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[derive(Clone, Copy, Debug, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub struct NisReport<S> {
@@ -655,10 +693,20 @@ pub struct NisReport<S> {
 /// runs). Work per update is `O(W)` (the sum is recomputed, so rounding does
 /// not accumulate). A NaN, infinite or negative NIS, or a sample with zero
 /// degrees of freedom, is rejected (counted) and leaves the window as it was.
+#[cfg_attr(
+    feature = "serde",
+    derive(serde::Serialize, serde::Deserialize),
+    serde(bound(
+        serialize = "S: serde::Serialize",
+        deserialize = "S: serde::Deserialize<'de> + Copy + Default"
+    ))
+)]
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct NisMonitor<S, const W: usize> {
     bounds: ChiSquareBounds<S>,
+    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
     values: [S; W],
+    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
     dofs: [u8; W],
     next: usize,
     filled: usize,
@@ -667,6 +715,41 @@ pub struct NisMonitor<S, const W: usize> {
 }
 
 impl<S: Scalar, const W: usize> NisMonitor<S, W> {
+    #[cfg(feature = "serde")]
+    /// The test probability, for checkpoint fingerprints.
+    pub(crate) fn config_key(&self) -> S {
+        self.bounds.probability
+    }
+
+    #[cfg(feature = "serde")]
+    /// True when `state` (a decoded checkpoint) has this monitor's bounds
+    /// and a possible window: finite non-negative values, degrees of
+    /// freedom at least 1 where filled, indices in range.
+    pub(crate) fn accepts(&self, state: &Self) -> bool {
+        let bits = |a: S| a.to_f64().to_bits();
+        let same_bounds = bits(self.bounds.probability) == bits(state.bounds.probability)
+            && bits(self.bounds.z) == bits(state.bounds.z)
+            && self
+                .bounds
+                .lower
+                .iter()
+                .zip(state.bounds.lower.iter())
+                .all(|(a, b)| bits(*a) == bits(*b))
+            && self
+                .bounds
+                .upper
+                .iter()
+                .zip(state.bounds.upper.iter())
+                .all(|(a, b)| bits(*a) == bits(*b));
+        let filled = state.filled.min(W);
+        same_bounds
+            && state.next < W.max(1)
+            && state.filled <= W
+            && state.values.iter().all(|v| v.is_finite() && *v >= S::ZERO)
+            && state.dofs.iter().take(filled).all(|d| *d >= 1)
+            && state.last.sum.is_finite()
+    }
+
     /// An empty window tested at probability `bounds.probability()`.
     ///
     /// # Errors

@@ -844,3 +844,74 @@ fn observer_spec_round_trip_is_validated_once() {
         );
     }
 }
+
+#[test]
+fn diagnostics_monitors_round_trip_and_refuse_another_configuration() {
+    use crate::diagnostics::{ChiSquareBounds, ClosureConfig, ClosureMonitor, NisMonitor};
+    let cfg = ClosureConfig {
+        window_ticks: 30,
+        tick_ms: 1000,
+        holdup_noise: 0.003f32,
+        net_flow_noise: 1e-5,
+        k: 0.5,
+        h: 5.0,
+    };
+    let mut a = ClosureMonitor::new(&cfg).unwrap();
+    let mut nis_a: NisMonitor<f32, 20> =
+        NisMonitor::new(ChiSquareBounds::new(0.95).unwrap()).unwrap();
+    // A residual that drifts (more out than in) and NIS values, part-way
+    // through a window and with the CUSUM charged.
+    for k in 0..95u32 {
+        a.update(Some(2.0 - 0.0004 * k as f32), 0.0);
+        nis_a.update(0.5 + (k % 5) as f32, 1);
+    }
+    let mut mem = [0xFFu8; MEM];
+    let mut st = MemStorage::new(&mut mem);
+    let mut scratch = [0u8; 1024];
+    let closure_slots = Checkpoints::new(64, 512);
+    let nis_slots = Checkpoints::new(64 + 1024, 512);
+    closure_slots.save(&a, &mut st, &mut scratch).unwrap();
+    nis_slots.save(&nis_a, &mut st, &mut scratch).unwrap();
+
+    // Restore into fresh monitors of the same configuration: then both
+    // continue identically (bit for bit).
+    let mut b = ClosureMonitor::new(&cfg).unwrap();
+    let mut nis_b: NisMonitor<f32, 20> =
+        NisMonitor::new(ChiSquareBounds::new(0.95).unwrap()).unwrap();
+    closure_slots
+        .restore_into(&mut b, &mut st, &mut scratch)
+        .unwrap();
+    nis_slots
+        .restore_into(&mut nis_b, &mut st, &mut scratch)
+        .unwrap();
+    assert_eq!(a, b);
+    for k in 95..200u32 {
+        let z = Some(2.0 - 0.0004 * k as f32);
+        assert_eq!(a.update(z, 0.0), b.update(z, 0.0));
+        let x = 0.5 + (k % 5) as f32;
+        assert_eq!(nis_a.update(x, 1), nis_b.update(x, 1));
+    }
+
+    // Another CUSUM interval or test probability: refused with its reason.
+    let mut other = ClosureMonitor::new(&ClosureConfig { h: 4.0, ..cfg }).unwrap();
+    assert_eq!(
+        closure_slots
+            .restore_into(&mut other, &mut st, &mut scratch)
+            .err(),
+        Some(Error::CheckpointConfigMismatch)
+    );
+    let mut nis_other: NisMonitor<f32, 20> =
+        NisMonitor::new(ChiSquareBounds::new(0.99).unwrap()).unwrap();
+    assert_eq!(
+        nis_slots
+            .restore_into(&mut nis_other, &mut st, &mut scratch)
+            .err(),
+        Some(Error::CheckpointConfigMismatch)
+    );
+    // A closure record is not a NIS record.
+    let mut wrong_kind: NisMonitor<f32, 20> =
+        NisMonitor::new(ChiSquareBounds::new(0.95).unwrap()).unwrap();
+    assert!(closure_slots
+        .restore_into(&mut wrong_kind, &mut st, &mut scratch)
+        .is_err());
+}

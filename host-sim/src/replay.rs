@@ -803,22 +803,18 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
     )?;
 
     // Summary.
-    let flag_names = [
-        "empty",
-        "near_empty",
-        "overflow",
-        "outlet_limited",
-        "input_negative",
-        "input_not_finite",
-        "amount_clamped",
-        "method_fallback",
-        "numeric_fault",
-    ];
-    let flags_json: serde_json::Map<String, serde_json::Value> = flag_names
+    // Flag names come from the kernel's own table (one bit each).
+    let flags_json: serde_json::Map<String, serde_json::Value> = tally
+        .flags
         .iter()
         .enumerate()
-        .filter(|(i, _)| tally.flags[*i] > 0)
-        .map(|(i, n)| (n.to_string(), json!(tally.flags[i])))
+        .filter(|(_, n)| **n > 0)
+        .filter_map(|(bit, n)| {
+            StatusFlags::from_bits(1 << bit)
+                .names()
+                .next()
+                .map(|name| (name.to_string(), json!(n)))
+        })
         .collect();
     let open_agree = open_cmp.results();
     let corr_agree = corr.as_ref().map(|c| c.comparison.results());
@@ -1079,9 +1075,4 @@ fn csv_name(s: &str) -> String {
             }
         })
         .collect()
-}
-
-/// Flags as a compact string (for logs and tests).
-pub fn flag_string(f: StatusFlags) -> String {
-    f.names().collect::<Vec<_>>().join("|")
 }

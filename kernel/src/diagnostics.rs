@@ -952,31 +952,6 @@ impl Reasons {
     /// ([`StatusFlags::INPUT_NEGATIVE`]).
     pub const INPUT_NEGATIVE: Self = Self(1 << 18);
 
-    /// The raw bits (stable: documented above, for registers and logs).
-    pub const fn bits(self) -> u32 {
-        self.0
-    }
-
-    /// Reasons from raw bits; unknown bits are kept.
-    pub const fn from_bits(bits: u32) -> Self {
-        Self(bits)
-    }
-
-    /// True if every bit of `other` is set in `self`.
-    pub const fn contains(self, other: Self) -> bool {
-        self.0 & other.0 == other.0
-    }
-
-    /// True if no bit is set.
-    pub const fn is_empty(self) -> bool {
-        self.0 == 0
-    }
-
-    /// Set the bits of `other`.
-    pub fn insert(&mut self, other: Self) {
-        self.0 |= other.0;
-    }
-
     /// Names of the set reasons, in bit order (fixed strings, for reports).
     pub fn names(self) -> impl Iterator<Item = &'static str> {
         RULES
@@ -986,18 +961,7 @@ impl Reasons {
     }
 }
 
-impl core::ops::BitOr for Reasons {
-    type Output = Self;
-    fn bitor(self, rhs: Self) -> Self {
-        Self(self.0 | rhs.0)
-    }
-}
-
-impl core::ops::BitOrAssign for Reasons {
-    fn bitor_assign(&mut self, rhs: Self) {
-        self.0 |= rhs.0;
-    }
-}
+crate::status::flag_set_ops!(Reasons, u32);
 
 /// Everything [`diagnose`] looks at.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]

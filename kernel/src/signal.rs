@@ -279,36 +279,6 @@ impl SignalFlags {
             | Self::NOT_FINITE.0,
     );
 
-    /// The raw bits.
-    pub const fn bits(self) -> u16 {
-        self.0
-    }
-
-    /// Flags from raw bits; unknown bits are kept.
-    pub const fn from_bits(bits: u16) -> Self {
-        Self(bits)
-    }
-
-    /// True if every bit of `other` is set in `self`.
-    pub const fn contains(self, other: Self) -> bool {
-        self.0 & other.0 == other.0
-    }
-
-    /// True if any bit of `other` is set in `self`.
-    pub const fn intersects(self, other: Self) -> bool {
-        self.0 & other.0 != 0
-    }
-
-    /// True if no bit is set.
-    pub const fn is_empty(self) -> bool {
-        self.0 == 0
-    }
-
-    /// Set the bits of `other`.
-    pub fn insert(&mut self, other: Self) {
-        self.0 |= other.0;
-    }
-
     /// Names of the set flags, in bit order (fixed strings, for reports).
     pub fn names(self) -> impl Iterator<Item = &'static str> {
         const NAMES: [&str; 11] = [
@@ -332,18 +302,7 @@ impl SignalFlags {
     }
 }
 
-impl core::ops::BitOr for SignalFlags {
-    type Output = Self;
-    fn bitor(self, rhs: Self) -> Self {
-        Self(self.0 | rhs.0)
-    }
-}
-
-impl core::ops::BitOrAssign for SignalFlags {
-    fn bitor_assign(&mut self, rhs: Self) {
-        self.0 |= rhs.0;
-    }
-}
+crate::status::flag_set_ops!(SignalFlags, u16);
 
 /// One conditioned sample: the value to use, how far to trust it, and why.
 #[derive(Clone, Copy, Debug, Default, PartialEq)]

@@ -4,6 +4,60 @@
 //! raised here, so a caller (the observer, the register map, a log line) can
 //! see it and lower the quality of what depends on it.
 
+/// The operations every bit-set type of the kernel shares (status flags,
+/// signal flags, diagnostic reasons): raw bits, tests, union. Each type keeps
+/// its own constants and its own `names()` table.
+macro_rules! flag_set_ops {
+    ($ty:ident, $raw:ty) => {
+        impl $ty {
+            /// The raw bits (stable: documented with the constants, for
+            /// registers and logs).
+            pub const fn bits(self) -> $raw {
+                self.0
+            }
+
+            /// From raw bits; unknown bits are kept.
+            pub const fn from_bits(bits: $raw) -> Self {
+                Self(bits)
+            }
+
+            /// True if every bit of `other` is set in `self`.
+            pub const fn contains(self, other: Self) -> bool {
+                self.0 & other.0 == other.0
+            }
+
+            /// True if any bit of `other` is set in `self`.
+            pub const fn intersects(self, other: Self) -> bool {
+                self.0 & other.0 != 0
+            }
+
+            /// True if no bit is set.
+            pub const fn is_empty(self) -> bool {
+                self.0 == 0
+            }
+
+            /// Set the bits of `other`.
+            pub fn insert(&mut self, other: Self) {
+                self.0 |= other.0;
+            }
+        }
+
+        impl core::ops::BitOr for $ty {
+            type Output = Self;
+            fn bitor(self, rhs: Self) -> Self {
+                Self(self.0 | rhs.0)
+            }
+        }
+
+        impl core::ops::BitOrAssign for $ty {
+            fn bitor_assign(&mut self, rhs: Self) {
+                self.0 |= rhs.0;
+            }
+        }
+    };
+}
+pub(crate) use flag_set_ops;
+
 /// A set of status bits raised during one tick (or accumulated over several).
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -38,31 +92,6 @@ impl StatusFlags {
     /// amounts were held at their previous values for this tick.
     pub const NUMERIC_FAULT: Self = Self(1 << 8);
 
-    /// The raw bits (stable: documented above, for registers and logs).
-    pub const fn bits(self) -> u16 {
-        self.0
-    }
-
-    /// Flags from raw bits; unknown bits are kept.
-    pub const fn from_bits(bits: u16) -> Self {
-        Self(bits)
-    }
-
-    /// True if every bit of `other` is set in `self`.
-    pub const fn contains(self, other: Self) -> bool {
-        self.0 & other.0 == other.0
-    }
-
-    /// True if no bit is set.
-    pub const fn is_empty(self) -> bool {
-        self.0 == 0
-    }
-
-    /// Set the bits of `other`.
-    pub fn insert(&mut self, other: Self) {
-        self.0 |= other.0;
-    }
-
     /// Names of the set flags, in bit order (fixed strings, for reports).
     pub fn names(self) -> impl Iterator<Item = &'static str> {
         const NAMES: [&str; 9] = [
@@ -84,18 +113,7 @@ impl StatusFlags {
     }
 }
 
-impl core::ops::BitOr for StatusFlags {
-    type Output = Self;
-    fn bitor(self, rhs: Self) -> Self {
-        Self(self.0 | rhs.0)
-    }
-}
-
-impl core::ops::BitOrAssign for StatusFlags {
-    fn bitor_assign(&mut self, rhs: Self) {
-        self.0 |= rhs.0;
-    }
-}
+crate::status::flag_set_ops!(StatusFlags, u16);
 
 /// Which integrator a tick actually used for the component balances.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]

@@ -65,6 +65,10 @@ pub(crate) fn solve<S: Scalar, const N: usize>(
 
 /// Solve `a · X = b` for a matrix right-hand side, in place: on success `b`
 /// holds `X`. `a` is destroyed. Partial pivoting, `N³/3 + N³` multiply-adds.
+///
+/// The same elimination as [`solve`], kept separate on purpose: the vector
+/// form runs four times in every tick on the gateway, and a one-column
+/// matrix there would add copies to the hottest loop.
 pub(crate) fn solve_matrix<S: Scalar, const N: usize>(
     a: &mut [[S; N]; N],
     b: &mut [[S; N]; N],

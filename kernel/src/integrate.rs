@@ -19,14 +19,15 @@
 //!   the stoichiometry (`w·ν_j = 0`) is kept to rounding at any tick. Each
 //!   reaction direction is weighted by one species (its most depleted
 //!   reactant), so the stoichiometric ratios of every reaction hold exactly.
-//!   Each stage solves one `N × N` system on the stack.
+//!   Each stage solves one small system on the stack: only the reactants
+//!   that weight a direction (the limiting ones) are unknowns.
 //! * [`euler_step`], [`rk4_step`] — reference methods for work–precision
 //!   comparisons, generic over any [`Rhs`]. Not positive: explicit Euler
 //!   goes negative at `λh > 1` and diverges at `λh > 2`.
 //!
 //! Bounds: `exact` does `N` `expm1` and one `ln1p`; `split_step` does one
-//! `exact` and two MPRK22 steps, each two rate evaluations and two `N × N`
-//! solves (`N³/3` multiply-adds each); no loop depends on input values.
+//! `exact` and two MPRK22 steps, each two rate evaluations and two solves
+//! of at most `min(N, 2R)` unknowns; no loop depends on input values.
 
 use crate::linalg::{solve, Singular};
 use crate::model::Model;
@@ -186,19 +187,190 @@ fn tiny<S: Scalar>() -> S {
     S::MIN_POSITIVE
 }
 
+/// The linear system of one Patankar stage, `(diag(a) − U)·y = b`.
+///
+/// Each reaction direction with (stage-averaged) molar rate `ρ_j` is
+/// weighted by `y_l/den_l` of its most depleted reactant `l`, so every
+/// reaction keeps its stoichiometric ratios exactly; it adds
+/// `s_j·w_j` (`s_j` its signed stoichiometry, `w_j = h·ρ_j/den_l`) to column
+/// `l` of `U`. `U` is therefore zero outside the columns of the weighting
+/// species `L` (at most one per direction, often fewer: competing reactions
+/// share their limiting reagent), and the rows outside `L` are decoupled
+/// once `y_L` is known. So `y_L` is solved from the `|L| × |L|` block
+/// first and every other amount follows from its own row: Gaussian
+/// elimination of the full system with the `L` rows first, exact in the
+/// same arithmetic, at a division for one weighting species and a pivoted
+/// `2 × 2` for two, against a pivoted `N × N` solve (`N³/3` multiply-adds)
+/// for the dense form.
+struct PatankarSystem<S, const N: usize> {
+    /// `u[l]` is column `l` of `U`.
+    u: [[S; N]; N],
+    /// Column `l` is non-zero (species `l` weights some direction).
+    weighting: [bool; N],
+    /// Largest `w_j·|ν_l|` of the stage: above one the stage is stiff.
+    stiffest: S,
+}
+
+impl<S: Scalar, const N: usize> PatankarSystem<S, N> {
+    /// Assemble the stage's `U` for rates `rho` and weights' denominators
+    /// `den` (amounts or concentrations, consistently).
+    #[inline(always)]
+    fn assemble<const R: usize, const O: usize>(
+        model: &Model<S, N, R, O>,
+        rho: &[[S; 2]; R],
+        den: &[S; N],
+        h: S,
+    ) -> Self {
+        // −0 rather than +0: the same in every sum, but an all-zero-bits
+        // array becomes a `memclr` call, which alone cost ~60 instructions
+        // a stage on the Cortex-M4F (measured with kernel/firmware/profile.sh).
+        let neg_zero = -S::ZERO;
+        let mut sys = Self {
+            u: [[neg_zero; N]; N],
+            weighting: [false; N],
+            stiffest: S::ZERO,
+        };
+        for (reaction, p) in model.reactions.iter().zip(rho.iter()) {
+            for (dir, &rate) in p.iter().enumerate() {
+                if !(rate > S::ZERO) {
+                    continue;
+                }
+                let sign = if dir == 0 { S::ONE } else { -S::ONE };
+                // Most depleted reactant: largest |ν_i|/den_i, compared as
+                // |ν_i|·den_l > |ν_l|·den_i (no division).
+                let mut l = N;
+                let mut nu_l = S::ZERO;
+                let mut den_l = S::ONE;
+                let mut blocked = false;
+                for (i, (&nu, &di)) in reaction.nu.iter().zip(den.iter()).enumerate() {
+                    let consumed = -sign * nu;
+                    if consumed > S::ZERO {
+                        if !(di > tiny()) {
+                            blocked = true;
+                        } else if l >= N || consumed * den_l > nu_l * di {
+                            nu_l = consumed;
+                            den_l = di;
+                            l = i;
+                        }
+                    }
+                }
+                if blocked {
+                    // A reactant is exhausted: the direction cannot run.
+                    continue;
+                }
+                let (Some(column), Some(flag)) = (sys.u.get_mut(l), sys.weighting.get_mut(l))
+                else {
+                    continue;
+                };
+                let w = h * rate / den_l;
+                sys.stiffest = sys.stiffest.max(w * nu_l);
+                let sw = sign * w;
+                for (uc, &nu) in column.iter_mut().zip(reaction.nu.iter()) {
+                    *uc += sw * nu;
+                }
+                *flag = true;
+            }
+        }
+        sys
+    }
+
+    /// Solve `(diag(a) − U)·y = b` and return `d = y − y0`, given
+    /// `e = b − a∘y0` (which the caller forms exactly: zero for a closed
+    /// reaction stage).
+    ///
+    /// Two forms of the result: when the stage is mild (every
+    /// `w_j·|ν_l| ≤ 1`) the increments are `(e + U·y_L)/a`, which keeps the
+    /// digits of a small change in `f32`; when it is stiff the weighting
+    /// species take their solved amounts themselves and the others
+    /// `(b + U·y_L)/a`, clipped at zero, so that a `k·h` of 1e4 does not
+    /// make the increment a difference of numbers 1e8 times larger (which
+    /// lost the product's mass to rounding).
+    #[inline(always)]
+    fn solve(&self, a: &[S; N], b: &[S; N], e: &[S; N], y0: &[S; N]) -> Result<[S; N], Singular> {
+        let mut first = N;
+        let mut second = N;
+        let mut m = 0usize;
+        for (i, &w) in self.weighting.iter().enumerate() {
+            if w {
+                if m == 0 {
+                    first = i;
+                } else if m == 1 {
+                    second = i;
+                }
+                m += 1;
+            }
+        }
+        // z: the new amounts of the weighting species (zero elsewhere).
+        let mut z = [S::ZERO; N];
+        if m == 0 {
+            // Nothing runs: y = b/a.
+        } else if m == 1 && first < N {
+            // One column: one division.
+            let p = first;
+            z[p] = b[p] / (a[p] - self.u[p][p]);
+        } else if m == 2 && first < N && second < N {
+            let (p, q) = (first, second);
+            // [[a_p − U_pp, −U_pq], [−U_qp, a_q − U_qq]]·[z_p, z_q] = [b_p, b_q],
+            // with U_ij = u[j][i]; pivoted elimination.
+            let mut r0 = [a[p] - self.u[p][p], -self.u[q][p], b[p]];
+            let mut r1 = [-self.u[p][q], a[q] - self.u[q][q], b[q]];
+            if r1[0].abs() > r0[0].abs() {
+                // Swapping the equations does not reorder the unknowns.
+                core::mem::swap(&mut r0, &mut r1);
+            }
+            let f = r1[0] / r0[0];
+            z[q] = (r1[2] - f * r0[2]) / (r1[1] - f * r0[1]);
+            z[p] = (r0[2] - r0[1] * z[q]) / r0[0];
+        } else {
+            // Three or more weighting species: the dense system (its other
+            // columns are zero).
+            let mut full = [[S::ZERO; N]; N];
+            for (i, row) in full.iter_mut().enumerate() {
+                for (j, x) in row.iter_mut().enumerate() {
+                    *x = -self.u[j][i];
+                }
+                row[i] += a[i];
+            }
+            let mut y = *b;
+            solve(&mut full, &mut y, N)?;
+            for ((zi, &yi), &w) in z.iter_mut().zip(y.iter()).zip(self.weighting.iter()) {
+                if w {
+                    *zi = yi;
+                }
+            }
+        }
+        // U·z.
+        let mut uz = [S::ZERO; N];
+        for (column, &zl) in self.u.iter().zip(z.iter()) {
+            for (x, &uil) in uz.iter_mut().zip(column.iter()) {
+                *x += uil * zl;
+            }
+        }
+        let mut d = [S::ZERO; N];
+        if self.stiffest > S::ONE {
+            for i in 0..N {
+                let y = if self.weighting[i] {
+                    z[i]
+                } else {
+                    (b[i] + uz[i]) / a[i]
+                };
+                d[i] = y.max(S::ZERO) - y0[i];
+            }
+        } else {
+            for i in 0..N {
+                d[i] = (e[i] + uz[i]) / a[i];
+            }
+        }
+        if d.iter().all(|x| x.is_finite()) {
+            Ok(d)
+        } else {
+            Err(Singular)
+        }
+    }
+}
+
 /// One Patankar stage of the closed reaction system: solve
-/// `(I + Σ_j h·ρ_j·ν_j·e_lᵀ/den_l)·y_new = y0` and return `y_new − y0`.
-///
-/// Each direction with molar rate `rho` (already stage-averaged) is weighted
-/// by `y_new,l/den_l` for its most depleted reactant `l`, so every reaction
-/// keeps its stoichiometric ratios exactly.
-///
-/// Two algebraically equal forms: when the stage is mild (every weight
-/// `h·ρ/den ≤ 1`) the system is solved for the increment, which keeps the
-/// digits of a small change in `f32`; when it is stiff it is solved for
-/// `y_new` itself, whose right-hand side is just `y0`, so that a `k·h` of 1e4
-/// does not make the increment a difference of numbers 1e8 times larger
-/// (which lost the product's mass to rounding).
+/// `(I − U)·y = y0` (see [`PatankarSystem`]) and return `y − y0`.
 fn patankar_stage<S: Scalar, const N: usize, const R: usize, const O: usize>(
     model: &Model<S, N, R, O>,
     rho: &[[S; 2]; R],
@@ -206,62 +378,8 @@ fn patankar_stage<S: Scalar, const N: usize, const R: usize, const O: usize>(
     y0: &[S; N],
     h: S,
 ) -> Result<[S; N], Singular> {
-    let mut a = [[S::ZERO; N]; N];
-    for (i, row) in a.iter_mut().enumerate() {
-        row[i] = S::ONE;
-    }
-    let mut inc = [S::ZERO; N];
-    let mut stiffest = S::ZERO;
-    for (reaction, p) in model.reactions.iter().zip(rho.iter()) {
-        for (dir, &rate) in p.iter().enumerate() {
-            if !(rate > S::ZERO) {
-                continue;
-            }
-            let sign = if dir == 0 { S::ONE } else { -S::ONE };
-            // Most depleted reactant: largest |ν|/den.
-            let mut l = N;
-            let mut worst = S::ZERO;
-            let mut blocked = false;
-            for i in 0..N {
-                let s = sign * reaction.nu[i];
-                if s < S::ZERO {
-                    if !(den[i] > tiny()) {
-                        blocked = true;
-                        break;
-                    }
-                    let depletion = -s / den[i];
-                    if depletion > worst {
-                        worst = depletion;
-                        l = i;
-                    }
-                }
-            }
-            if blocked || l >= N {
-                // A reactant is exhausted: the direction cannot run.
-                continue;
-            }
-            let w = h * rate / den[l];
-            stiffest = stiffest.max(w * worst * den[l]);
-            for i in 0..N {
-                let s = sign * reaction.nu[i];
-                if s != S::ZERO {
-                    a[i][l] -= s * w;
-                    inc[i] += s * w * y0[l];
-                }
-            }
-        }
-    }
-    if stiffest <= S::ONE {
-        solve(&mut a, &mut inc)?;
-        Ok(inc)
-    } else {
-        let mut y = *y0;
-        solve(&mut a, &mut y)?;
-        for (yi, &y0i) in y.iter_mut().zip(y0.iter()) {
-            *yi = yi.max(S::ZERO) - y0i;
-        }
-        Ok(y)
-    }
+    let sys = PatankarSystem::assemble(model, rho, den, h);
+    sys.solve(&[S::ONE; N], y0, &[S::ZERO; N], y0)
 }
 
 /// Increment of the amounts by the reactions alone (closed vessel at holdup
@@ -295,6 +413,122 @@ pub(crate) fn mprk22_reactions<S: Scalar, const N: usize, const R: usize, const 
         m[1] = S::HALF * (p0[1] + p1[1]);
     }
     patankar_stage(model, &rho, &y1, y0, h)
+}
+
+/// Largest weight `w·|ν_l|` of a reaction direction, and largest dilution
+/// `h·q_in/V`, for which a tick is stepped whole (see [`mprk22_step`]).
+const MILD: f64 = 0.5;
+
+/// Increment of the amounts over a tick with reactions, by MPRK22: whole
+/// when the tick is mild, otherwise Strang-split (see [`split_step`]).
+///
+/// *Whole* ([`whole_step`]): MPRK22 on the concentrations with the feed as
+/// a source, dilution by the inflow as a sink on each species' own
+/// diagonal and the reactions weighted as in the split step: two Patankar
+/// stages and two rate evaluations per tick, against four of each for the
+/// split, and no splitting error (a steady state of the balances is a fixed
+/// point of the step). It is used when, in its first stage, every reaction
+/// direction's weight `h·ρ·|ν_l|/den_l` and the dilution `h·q_in/V` at both
+/// ends of the tick are at most `1/2`: there MPRK22 is accurate, and a
+/// species that takes part in no reaction stays within its initial and feed
+/// concentrations (that needs `h·q_in/V ≤ 2`; worked by hand for a step from
+/// zero, property-tested in general). In concentrations a draining vessel
+/// leaves an inert species' concentration exactly unchanged.
+///
+/// *Split*: everything else — stiff reactions, a tick longer than a
+/// fraction of the residence time — where the split keeps inert species
+/// bounded at any tick and consumes a fast reagent's feed within the tick.
+/// The whole step's first stage is then discarded (one assembly and one
+/// rate evaluation, counted in `evals`).
+pub(crate) fn mprk22_step<S: Scalar, const N: usize, const R: usize, const O: usize>(
+    model: &Model<S, N, R, O>,
+    fr: &TickFrame<S, N, R>,
+    y0: &[S; N],
+    evals: &mut u8,
+) -> Result<[S; N], Singular> {
+    match whole_step(model, fr, y0, evals)? {
+        Some(d) => Ok(d),
+        None => split_step(model, fr, y0, evals),
+    }
+}
+
+/// The whole-tick MPRK22 of [`mprk22_step`], or `None` when the tick is not
+/// mild. Stage 1 (Patankar–Euler) at the tick's start; stage 2 with the
+/// trapezoidal average of sources, sinks and rates, every sink weighted by
+/// `c_new/c₁` (Burchard, Deleersnijder & Meister 2003, `α = 1`).
+pub(crate) fn whole_step<S: Scalar, const N: usize, const R: usize, const O: usize>(
+    model: &Model<S, N, R, O>,
+    fr: &TickFrame<S, N, R>,
+    y0: &[S; N],
+    evals: &mut u8,
+) -> Result<Option<[S; N]>, Singular> {
+    let h = fr.h;
+    let mild = S::of(MILD);
+    let inv_v0 = S::ONE / fr.v0;
+    let inv_v1 = S::ONE / fr.v1;
+    // Dilution rates (1/s) and feed per volume (mol/(m³·s)) at both ends.
+    let (dil0, dil1) = (fr.q_in * inv_v0, fr.q_in * inv_v1);
+    if !(h * dil0 <= mild) || !(h * dil1 <= mild) {
+        return Ok(None);
+    }
+    let mut c0 = [S::ZERO; N];
+    for (c, &y) in c0.iter_mut().zip(y0.iter()) {
+        *c = y * inv_v0;
+    }
+    // Stage 1.
+    let mut r0 = [[S::ZERO; 2]; R];
+    model.molar_rates(&fr.k, &c0, S::ONE, &mut r0);
+    *evals = evals.saturating_add(1);
+    let sys = PatankarSystem::assemble(model, &r0, &c0, h);
+    if !(sys.stiffest <= mild) {
+        return Ok(None);
+    }
+    let a1 = S::ONE + h * dil0;
+    let mut a = [a1; N];
+    let mut b = [S::ZERO; N];
+    let mut e = [S::ZERO; N];
+    for i in 0..N {
+        let src = h * fr.feed[i] * inv_v0;
+        b[i] = c0[i] + src;
+        e[i] = src - h * dil0 * c0[i];
+    }
+    let d1 = sys.solve(&a, &b, &e, &c0)?;
+    let mut c1 = [S::ZERO; N];
+    for i in 0..N {
+        c1[i] = (c0[i] + d1[i]).max(S::ZERO);
+    }
+    // Stage 2.
+    let mut r1 = [[S::ZERO; 2]; R];
+    model.molar_rates(&fr.k, &c1, S::ONE, &mut r1);
+    *evals = evals.saturating_add(1);
+    let mut rho = [[S::ZERO; 2]; R];
+    for ((m, p0), p1) in rho.iter_mut().zip(r0.iter()).zip(r1.iter()) {
+        m[0] = S::HALF * (p0[0] + p1[0]);
+        m[1] = S::HALF * (p0[1] + p1[1]);
+    }
+    let sys = PatankarSystem::assemble(model, &rho, &c1, h);
+    let half_h = S::HALF * h;
+    for i in 0..N {
+        // Trapezoidal source; sink (dil0·c0 + dil1·c1)/2 weighted by c_new/c1.
+        let src = half_h * fr.feed[i] * (inv_v0 + inv_v1);
+        let ratio = if c1[i] > tiny() {
+            c0[i] / c1[i]
+        } else {
+            S::ONE
+        };
+        let sink = half_h * (dil0 * ratio + dil1);
+        a[i] = S::ONE + sink;
+        b[i] = c0[i] + src;
+        e[i] = src - sink * c0[i];
+    }
+    let d2 = sys.solve(&a, &b, &e, &c0)?;
+    // Amounts: y = c·V₁, so y − y0 = c0·(V₁ − V₀) + d·V₁.
+    let dv = fr.v1 - fr.v0;
+    let mut d = [S::ZERO; N];
+    for i in 0..N {
+        d[i] = c0[i] * dv + d2[i] * fr.v1;
+    }
+    Ok(Some(d))
 }
 
 /// Increment of the amounts over a tick with reactions, by Strang
@@ -337,6 +571,214 @@ pub(crate) fn split_step<S: Scalar, const N: usize, const R: usize, const O: usi
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::geometry::{Bottom, Geometry, Shape};
+    use crate::model::{Kinetics, Method, ReactionSpec, VesselSpec};
+    use crate::Outlet;
+
+    fn kinetics<const N: usize>(k: f64, orders: [f64; N]) -> Kinetics<f64, N> {
+        Kinetics {
+            rate_constant: k,
+            activation_energy: 0.0,
+            orders,
+        }
+    }
+
+    fn network<const N: usize, const R: usize>(
+        reactions: &[([f64; N], f64, Option<f64>)],
+    ) -> Model<f64, N, R, 1> {
+        let mut specs = heapless::Vec::new();
+        for &(nu, kf, kr) in reactions {
+            let fwd = nu.map(|x| if x < 0.0 { -x } else { 0.0 });
+            let rev = nu.map(|x| if x > 0.0 { x } else { 0.0 });
+            let _ = specs.push(ReactionSpec {
+                stoichiometry: nu,
+                forward: kinetics(kf, fwd),
+                reverse: kr.map(|k| kinetics(k, rev)),
+                reference_temperature: 300.0,
+            });
+        }
+        let mut outlets = heapless::Vec::new();
+        let _ = outlets.push(Outlet::Measured);
+        Model::new(VesselSpec {
+            geometry: Geometry::new(Shape::VerticalCylinder {
+                diameter: 1.0,
+                height: 2.0,
+                bottom: Bottom::Flat,
+            })
+            .unwrap(),
+            outlets,
+            reactions: specs,
+            min_holdup: 0.01,
+            tick_ms: 1000,
+            method: Method::Mprk22,
+        })
+        .unwrap()
+    }
+
+    /// The Patankar stage as published: the dense `N × N` system
+    /// `(I + Σ_j h·ρ_j·ν_j·e_lᵀ/den_l)·y = y0`, weighted by each direction's
+    /// most depleted reactant, solved by pivoted elimination.
+    fn dense_stage<const N: usize, const R: usize>(
+        model: &Model<f64, N, R, 1>,
+        rho: &[[f64; 2]; R],
+        den: &[f64; N],
+        y0: &[f64; N],
+        h: f64,
+    ) -> [f64; N] {
+        let mut a = [[0.0; N]; N];
+        for (i, row) in a.iter_mut().enumerate() {
+            row[i] = 1.0;
+        }
+        for (r, p) in model.reactions.iter().zip(rho.iter()) {
+            for (dir, &rate) in p.iter().enumerate() {
+                let sign = if dir == 0 { 1.0 } else { -1.0 };
+                let l = (0..N)
+                    .filter(|&i| sign * r.nu[i] < 0.0)
+                    .max_by(|&i, &j| {
+                        (-sign * r.nu[i] / den[i]).total_cmp(&(-sign * r.nu[j] / den[j]))
+                    })
+                    .unwrap();
+                for i in 0..N {
+                    a[i][l] -= sign * r.nu[i] * h * rate / den[l];
+                }
+            }
+        }
+        let mut y = *y0;
+        solve(&mut a, &mut y, N).unwrap();
+        y
+    }
+
+    fn frame<const N: usize, const R: usize>(
+        model: &Model<f64, N, R, 1>,
+        h: f64,
+        v: f64,
+        q: f64,
+        feed: [f64; N],
+    ) -> TickFrame<f64, N, R> {
+        let mut k = [[0.0; 2]; R];
+        model.rate_constants(300.0, &mut k);
+        TickFrame {
+            h,
+            v0: v,
+            v1: v,
+            q_in: q,
+            q_out: q,
+            feed: feed.map(|c| q * c),
+            k,
+        }
+    }
+
+    /// A steady state of the CSTR balances is a fixed point of the whole
+    /// step: 2A → B (rate k·c_A²) fed with A at c_f, where
+    /// `D·(c_f − c) = 2k·c²` gives `c = (−D + √(D² + 8kD·c_f))/(4k)` and
+    /// `c_B = k·c²/D` (the quadratic formula on the CSTR balance; Levenspiel
+    /// ch. 5 for the balance, from memory).
+    #[test]
+    fn whole_step_keeps_a_steady_state_and_split_takes_over_when_stiff() {
+        let (k, cf, v, q) = (2e-3, 50.0, 2.0, 1e-3);
+        let model = network::<2, 1>(&[([-2.0, 1.0], k, None)]);
+        let d = q / v;
+        let ca = (-d + (d * d + 8.0 * k * d * cf).sqrt()) / (4.0 * k);
+        let cb = k * ca * ca / d;
+        let y0 = [ca * v, cb * v];
+        let fr = frame(&model, 1.0, v, q, [cf, 0.0]);
+        let mut evals = 0;
+        let inc = mprk22_step(&model, &fr, &y0, &mut evals).unwrap();
+        assert_eq!(evals, 2, "a mild tick is stepped whole");
+        for i in 0..2 {
+            assert!(
+                inc[i].abs() <= 1e-13 * y0[i],
+                "species {i} moved {:e}",
+                inc[i]
+            );
+        }
+        // The same vessel at a 1000 s tick: 2h·k·c_A ≈ 10 is stiff, so the
+        // whole step's first stage is discarded and the split step runs.
+        let fr = frame(&model, 1000.0, v, q, [cf, 0.0]);
+        let mut evals = 0;
+        let inc = mprk22_step(&model, &fr, &y0, &mut evals).unwrap();
+        assert_eq!(evals, 5);
+        let mut split_evals = 0;
+        let split = split_step(&model, &fr, &y0, &mut split_evals).unwrap();
+        assert_eq!(inc.map(f64::to_bits), split.map(f64::to_bits));
+        // A tick of half a residence time and more is split too.
+        let fr = frame(&model, 1100.0, v, q, [cf, 0.0]);
+        assert!(whole_step(&model, &fr, &y0, &mut 0).unwrap().is_none());
+    }
+
+    /// The reduced solve (weighting species first) against the dense
+    /// system, for one, two and three weighting species, mild and stiff.
+    #[test]
+    fn reduced_patankar_solve_matches_the_dense_system() {
+        // A + B → C, A → D, C ⇌ B + D: A limits both forward reactions in
+        // the first state (one column), B the first in the second (two); C
+        // weights the third forward (three), D its reverse (four).
+        let model = network::<4, 3>(&[
+            ([-1.0, -1.0, 1.0, 0.0], 1.0, None),
+            ([-1.0, 0.0, 0.0, 1.0], 1.0, None),
+            ([0.0, 1.0, -1.0, 1.0], 1.0, Some(1.0)),
+        ]);
+        let cases: [([f64; 4], [[f64; 2]; 3], usize); 4] = [
+            (
+                [1.0, 5.0, 2.0, 0.5],
+                [[0.3, 0.0], [0.2, 0.0], [0.0, 0.0]],
+                1,
+            ),
+            (
+                [4.0, 1.0, 2.0, 0.5],
+                [[0.3, 0.0], [0.2, 0.0], [0.0, 0.0]],
+                2,
+            ),
+            (
+                [4.0, 1.0, 2.0, 0.5],
+                [[0.3, 0.0], [0.2, 0.0], [0.4, 0.0]],
+                3,
+            ),
+            (
+                [4.0, 1.0, 2.0, 0.5],
+                [[30.0, 0.0], [20.0, 0.0], [40.0, 10.0]],
+                4,
+            ),
+        ];
+        for (y0, rho, columns) in cases {
+            for h in [0.01, 1.0, 100.0] {
+                let sys = PatankarSystem::assemble(&model, &rho, &y0, h);
+                assert_eq!(sys.weighting.iter().filter(|&&w| w).count(), columns);
+                let d = sys.solve(&[1.0; 4], &y0, &[0.0; 4], &y0).unwrap();
+                let mut dense = dense_stage(&model, &rho, &y0, &y0, h);
+                // A stiff stage clips at zero (the dense solution can go
+                // negative when co-reactants couple several columns); then
+                // the invariants hold only up to what was clipped.
+                let clipped = dense.iter().any(|&x| x < 0.0);
+                assert!(!clipped || sys.stiffest > 1.0);
+                if sys.stiffest > 1.0 {
+                    dense = dense.map(|x| x.max(0.0));
+                }
+                for i in 0..4 {
+                    let y = y0[i] + d[i];
+                    assert!(y >= 0.0);
+                    assert!(
+                        (y - dense[i]).abs() <= 1e-13 * (1.0 + dense[i].abs()),
+                        "h {h}, {columns} columns, species {i}: {y} against dense {}",
+                        dense[i]
+                    );
+                }
+                if clipped {
+                    continue;
+                }
+                // The network's linear invariants (w·ν_j = 0 for every j;
+                // hand algebra): (1, 0, 1, 1) and (0, 1, 1, 0).
+                for w in [[1.0, 0.0, 1.0, 1.0], [0.0, 1.0, 1.0, 0.0]] {
+                    let change: f64 = (0..4).map(|i| w[i] * d[i]).sum();
+                    let total: f64 = (0..4).map(|i| w[i] * y0[i]).sum();
+                    assert!(
+                        change.abs() <= 1e-14 * total,
+                        "h {h}: invariant moved {change:e}"
+                    );
+                }
+            }
+        }
+    }
 
     struct Decay;
     impl Rhs<f64, 1> for Decay {

@@ -12,16 +12,20 @@ use crate::Scalar;
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub(crate) struct Singular;
 
-/// Solve `a · x = b` in place: on success `b` holds `x`. `a` is destroyed.
+/// Solve `a · x = b` in place for the leading `m × m` block of `a` and the
+/// first `m` entries of `b` (`m ≤ N`; the rest is neither read nor
+/// written): on success `b[..m]` holds `x`. `a` is destroyed.
 pub(crate) fn solve<S: Scalar, const N: usize>(
     a: &mut [[S; N]; N],
     b: &mut [S; N],
+    m: usize,
 ) -> Result<(), Singular> {
-    for col in 0..N {
+    let m = m.min(N);
+    for col in 0..m {
         // Pivot: largest magnitude in this column at or below the diagonal.
         let mut piv = col;
         let mut best = a[col][col].abs();
-        for row in col + 1..N {
+        for row in col + 1..m {
             let m = a[row][col].abs();
             if m > best {
                 best = m;
@@ -36,10 +40,10 @@ pub(crate) fn solve<S: Scalar, const N: usize>(
             b.swap(piv, col);
         }
         let d = a[col][col];
-        for row in col + 1..N {
+        for row in col + 1..m {
             let f = a[row][col] / d;
             if f != S::ZERO {
-                for k in col..N {
+                for k in col..m {
                     let t = a[col][k];
                     a[row][k] -= f * t;
                 }
@@ -49,9 +53,9 @@ pub(crate) fn solve<S: Scalar, const N: usize>(
         }
     }
     // Back substitution.
-    for row in (0..N).rev() {
+    for row in (0..m).rev() {
         let mut s = b[row];
-        for k in row + 1..N {
+        for k in row + 1..m {
             s -= a[row][k] * b[k];
         }
         let x = s / a[row][row];
@@ -181,7 +185,7 @@ mod tests {
         // Hand-checked: x = (1, 2, 3).
         let mut a = [[0.0f64, 2.0, 1.0], [1.0, 1.0, 1.0], [2.0, 1.0, 0.0]];
         let mut b = [7.0, 6.0, 4.0];
-        solve(&mut a, &mut b).unwrap();
+        solve(&mut a, &mut b, 3).unwrap();
         for (x, e) in b.iter().zip([1.0, 2.0, 3.0]) {
             assert!((x - e).abs() < 1e-14);
         }
@@ -211,9 +215,9 @@ mod tests {
     fn reports_singular_and_nan() {
         let mut a = [[1.0f32, 2.0], [2.0, 4.0]];
         let mut b = [1.0, 2.0];
-        assert_eq!(solve(&mut a, &mut b), Err(Singular));
+        assert_eq!(solve(&mut a, &mut b, 2), Err(Singular));
         let mut a = [[f32::NAN, 0.0], [0.0, 1.0]];
         let mut b = [1.0, 2.0];
-        assert_eq!(solve(&mut a, &mut b), Err(Singular));
+        assert_eq!(solve(&mut a, &mut b, 2), Err(Singular));
     }
 }

@@ -112,9 +112,11 @@ pub enum Method {
     /// linear and uncoupled. A tick with changing volume and a reaction falls
     /// back to MPRK22 and says so.
     Exact,
-    /// Reactions by the modified Patankar–Runge–Kutta scheme (MPRK22) around
-    /// an exact transport step (Strang splitting): positive and conservative
-    /// at any tick, second order.
+    /// The modified Patankar–Runge–Kutta scheme (MPRK22): positive and
+    /// conservative at any tick, second order. A mild tick is stepped whole
+    /// (feed, dilution and reactions together); a stiff one, or one longer
+    /// than a fraction of the residence time, steps the reactions around an
+    /// exact transport step (Strang splitting). See [`crate::integrate`].
     Mprk22,
     /// Reference only: classical RK4. Loses positivity at large `k·h`;
     /// negative amounts are clamped and flagged.

@@ -27,7 +27,7 @@
 //! of the computed outlets (each a level inversion of bounded iterations),
 //! then the integrator's fixed work; no heap, no recursion, no panic.
 
-use crate::integrate::{euler_step, exact, rk4_step, split_step, TickFrame, TickRhs};
+use crate::integrate::{euler_step, exact, mprk22_step, rk4_step, TickFrame, TickRhs};
 use crate::model::{Inputs, Method, Model, Outlet};
 use crate::status::{MethodUsed, StatusFlags, StepReport};
 use crate::units::Millis;
@@ -488,7 +488,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
             }
             _ => {
                 rep.method = MethodUsed::Mprk22;
-                split_step(model, frame, y0, &mut rep.rate_evaluations).ok()
+                mprk22_step(model, frame, y0, &mut rep.rate_evaluations).ok()
             }
         }
     }

@@ -10,26 +10,39 @@
 //!   which at constant volume is `c_f + (c₀ − c_f)·e^{−λt}`; with first-order
 //!   consumption at constant volume, `λ = q/V + k`. Written with `expm1` and
 //!   `ln1p` so that `f32` keeps its digits when `λh` is 1e-6.
-//! * `split_step` — for general networks: Strang splitting of the tick into
-//!   reactions for `h/2`, transport (feed, outflow, volume change) for `h`
-//!   by the exact step, reactions for `h/2`. The reactions are stepped by the
-//!   modified Patankar–Runge–Kutta scheme MPRK22 of Burchard, Deleersnijder
-//!   & Meister (Appl. Numer. Math. 47 (2003) 1–30): second order,
+//! * `mprk22_step` — for general networks, by the modified
+//!   Patankar–Runge–Kutta scheme MPRK22 of Burchard, Deleersnijder &
+//!   Meister (Appl. Numer. Math. 47 (2003) 1–30): second order,
 //!   unconditionally positive, and conservative — every linear invariant of
 //!   the stoichiometry (`w·ν_j = 0`) is kept to rounding at any tick. Each
 //!   reaction direction is weighted by one species (its most depleted
 //!   reactant), so the stoichiometric ratios of every reaction hold exactly.
-//!   Each stage solves one small system on the stack: only the reactants
-//!   that weight a direction (the limiting ones) are unknowns.
+//!   Each stage solves one small system on the stack: only the species that
+//!   weight a direction (the limiting ones) are unknowns. Two ways through
+//!   a tick:
+//!   * `whole_step` — a *mild* tick (every direction's weight and the
+//!     dilution `h·q_in/V` at most 1/2): MPRK22 on the concentrations with
+//!     feed, dilution and reactions together; two stages, no splitting
+//!     error, a steady state is a fixed point.
+//!   * `split_step` — every other tick: Strang splitting into reactions for
+//!     `h/2`, transport (feed, outflow, volume change) for `h` by the exact
+//!     step, reactions for `h/2`; four stages. It keeps a species that takes
+//!     part in no reaction within its initial and feed concentrations at any
+//!     tick, and consumes a fast reagent's feed within the tick.
 //! * [`euler_step`], [`rk4_step`] — reference methods for work–precision
 //!   comparisons, generic over any [`Rhs`]. Not positive: explicit Euler
 //!   goes negative at `λh > 1` and diverges at `λh > 2`.
 //!
-//! Bounds: `exact` does `N` `expm1` and one `ln1p`; `split_step` does one
-//! `exact` and two MPRK22 steps, each two rate evaluations and two solves
-//! of at most `min(N, 2R)` unknowns; no loop depends on input values.
+//! Bounds: `exact` does `N` `expm1` and one `ln1p`; `whole_step` does two
+//! rate evaluations and two solves of at most `min(N, 2R)` unknowns;
+//! `split_step` one `exact` and twice that; a stiff tick tries one stage of
+//! the whole step first. No loop depends on input values.
+//!
+//! Cost on the Cortex-M4F (kernel/firmware/measure.sh): the reference tick
+//! (3 species, 2 reactions, mild) went from 2,839 instructions with every
+//! tick split and dense `3 × 3` stage solves to about 1,400.
 
-use crate::linalg::{solve, Singular};
+use crate::linalg::{solve, zeros, Singular};
 use crate::model::Model;
 use crate::Scalar;
 
@@ -221,12 +234,8 @@ impl<S: Scalar, const N: usize> PatankarSystem<S, N> {
         den: &[S; N],
         h: S,
     ) -> Self {
-        // −0 rather than +0: the same in every sum, but an all-zero-bits
-        // array becomes a `memclr` call, which alone cost ~60 instructions
-        // a stage on the Cortex-M4F (measured with kernel/firmware/profile.sh).
-        let neg_zero = -S::ZERO;
         let mut sys = Self {
-            u: [[neg_zero; N]; N],
+            u: zeros(),
             weighting: [false; N],
             stiffest: S::ZERO,
         };

@@ -51,7 +51,7 @@
 
 use heapless::Vec;
 
-use crate::linalg::{is_positive_definite, mat_mul, solve_matrix};
+use crate::linalg::{is_positive_definite, left_multiply, mat_mul, solve_matrix, zeros};
 use crate::model::Inputs;
 use crate::units::Millis;
 use crate::vessel::{Vessel, VesselState};
@@ -258,7 +258,7 @@ fn symmetrize<S: Scalar, const D: usize>(p: &mut [[S; D]; D]) {
 }
 
 fn identity<S: Scalar, const D: usize>() -> [[S; D]; D] {
-    let mut m = [[S::ZERO; D]; D];
+    let mut m = zeros();
     for (i, row) in m.iter_mut().enumerate() {
         row[i] = S::ONE;
     }
@@ -543,7 +543,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         u: &Inputs<S, N, I, O>,
         raw: &Inputs<S, N, I, O>,
     ) -> [[S; D]; D] {
-        let mut f = [[S::ZERO; D]; D];
+        let mut f = zeros();
         let model = self.vessel.model();
         let v = self.vessel.volume();
         let n = self.vessel.amounts();
@@ -642,7 +642,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         // Φ P Φᵀ: T = Φ P, then only the upper triangle of T Φᵀ (the result
         // is symmetric), mirrored.
         let t = mat_mul(&phi, &self.p);
-        let mut p = [[S::ZERO; D]; D];
+        let mut p = zeros();
         for i in 0..D {
             for j in i..D {
                 let mut x = S::ZERO;
@@ -672,7 +672,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
                 self.counters.transition_fallbacks.saturating_add(1);
         }
         for pend in self.pending.iter_mut() {
-            pend.m = mat_mul(&phi, &pend.m);
+            left_multiply(&phi, &mut pend.m);
         }
         let report = self.vessel.step(&uc);
         // Drop samples whose result is overdue, giving back the information
@@ -761,23 +761,24 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         // the rank-one structure of A in O(D²) instead of two D×D products:
         // B = A P = P − K (Hᵀ P) (Hᵀ P = (P H)ᵀ, P symmetric), then
         // B Aᵀ = B − (B H) Kᵀ. Same arithmetic terms as the products.
-        let mut p = self.p;
+        // In place: P is not needed again (ph holds P H), and copying a D×D
+        // matrix costs ~100 instructions on the Cortex-M4F.
+        let p = &mut self.p;
         for i in 0..D {
             for j in 0..D {
                 p[i][j] -= k[i] * ph[j];
             }
         }
-        let bh = mat_vec(&p, h);
+        let bh = mat_vec(p, h);
         for i in 0..D {
             for j in 0..D {
                 p[i][j] += k[j] * (r * k[i] - bh[i]);
             }
         }
-        symmetrize(&mut p);
-        if !make_positive_definite(&mut p) {
+        symmetrize(p);
+        if !make_positive_definite(p) {
             self.counters.covariance_guarded = self.counters.covariance_guarded.saturating_add(1);
         }
-        self.p = p;
         // M ← A M = M − K (Hᵀ M), also O(D²).
         for pend in self.pending.iter_mut() {
             let mut hm = [S::ZERO; D];

@@ -67,23 +67,28 @@ pub(crate) fn solve<S: Scalar, const N: usize>(
     Ok(())
 }
 
-/// Solve `a · X = b` for a matrix right-hand side, in place: on success `b`
-/// holds `X`. `a` is destroyed. Partial pivoting, `N³/3 + N³` multiply-adds.
+/// Solve `a · X = b` for a matrix right-hand side, in place, on the leading
+/// `m × m` block of `a` and the first `m` rows of `b` (all `N` columns;
+/// `m ≤ N`, the other rows are neither read nor written): on success
+/// `b[..m]` holds `X`. `a` is destroyed. Partial pivoting, `m³/3 + m²·N`
+/// multiply-adds.
 ///
 /// The same elimination as [`solve`], kept separate on purpose: the vector
-/// form runs four times in every tick on the gateway, and a one-column
+/// form runs in every Patankar stage on the gateway, and a one-column
 /// matrix there would add copies to the hottest loop.
 pub(crate) fn solve_matrix<S: Scalar, const N: usize>(
     a: &mut [[S; N]; N],
     b: &mut [[S; N]; N],
+    m: usize,
 ) -> Result<(), Singular> {
-    for col in 0..N {
+    let m = m.min(N);
+    for col in 0..m {
         let mut piv = col;
         let mut best = a[col][col].abs();
-        for row in col + 1..N {
-            let m = a[row][col].abs();
-            if m > best {
-                best = m;
+        for row in col + 1..m {
+            let x = a[row][col].abs();
+            if x > best {
+                best = x;
                 piv = row;
             }
         }
@@ -95,10 +100,10 @@ pub(crate) fn solve_matrix<S: Scalar, const N: usize>(
             b.swap(piv, col);
         }
         let d = a[col][col];
-        for row in col + 1..N {
+        for row in col + 1..m {
             let f = a[row][col] / d;
             if f != S::ZERO {
-                for k in col..N {
+                for k in col..m {
                     let t = a[col][k];
                     a[row][k] -= f * t;
                 }
@@ -109,10 +114,10 @@ pub(crate) fn solve_matrix<S: Scalar, const N: usize>(
             }
         }
     }
-    for row in (0..N).rev() {
+    for row in (0..m).rev() {
         for c in 0..N {
             let mut s = b[row][c];
-            for k in row + 1..N {
+            for k in row + 1..m {
                 s -= a[row][k] * b[k][c];
             }
             let x = s / a[row][row];
@@ -230,7 +235,7 @@ mod tests {
         let a0 = [[4.0f64, 1.0, 0.5], [1.0, 3.0, 0.2], [0.5, 0.2, 2.0]];
         let mut a = a0;
         let mut x = [[1.0, 0.0, 0.0], [0.0, 1.0, 0.0], [0.0, 0.0, 1.0]];
-        solve_matrix(&mut a, &mut x).unwrap();
+        solve_matrix(&mut a, &mut x, 3).unwrap();
         let i = mat_mul(&a0, &x);
         for r in 0..3 {
             for c in 0..3 {

@@ -275,6 +275,41 @@ fn mat_vec<S: Scalar, const D: usize>(a: &[[S; D]; D], v: &[S; D]) -> [S; D] {
     out
 }
 
+/// The transition `Φ = (I − hF/2)⁻¹(I + hF/2)` (Cayley: second order, and
+/// bounded for any `h` when `F` is stable) of a Jacobian whose rows from
+/// `m` on are zero (the biases are random walks). With
+/// `F = [[F₁₁, F₁₂], [0, 0]]` split there,
+/// `Φ = [[(I − hF₁₁/2)⁻¹(I + hF₁₁/2), (I − hF₁₁/2)⁻¹·hF₁₂], [0, I]]`: one
+/// `m × m` solve with `D` right-hand columns instead of a `D × D` one.
+/// Returns `(Φ, true)`, or `(I + hF, false)` (explicit Euler) if the solve
+/// fails.
+fn transition<S: Scalar, const D: usize>(f: &[[S; D]; D], h: S, m: usize) -> ([[S; D]; D], bool) {
+    let m = m.min(D);
+    let mut a = identity::<S, D>();
+    let mut phi = identity::<S, D>();
+    for i in 0..m {
+        for j in 0..D {
+            let x = S::HALF * h * f[i][j];
+            if j < m {
+                a[i][j] -= x;
+                phi[i][j] += x;
+            } else {
+                phi[i][j] = x + x;
+            }
+        }
+    }
+    if solve_matrix(&mut a, &mut phi, m).is_ok() {
+        return (phi, true);
+    }
+    let mut phi = identity::<S, D>();
+    for i in 0..D {
+        for j in 0..D {
+            phi[i][j] += h * f[i][j];
+        }
+    }
+    (phi, false)
+}
+
 /// Make a symmetric `p` with positive diagonal positive definite if
 /// rounding has left it slightly indefinite (states of very different
 /// scales in `f32`). Returns `true` if `p` was already positive definite.
@@ -619,25 +654,10 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         let h: S = self.vessel.model().tick_s();
         let uc = self.corrected(u);
         let f = self.jacobian(&uc, u);
-        // Φ = (I − hF/2)⁻¹ (I + hF/2)
-        let mut a = identity::<S, D>();
-        let mut phi = identity::<S, D>();
-        for i in 0..D {
-            for j in 0..D {
-                let x = S::HALF * h * f[i][j];
-                a[i][j] -= x;
-                phi[i][j] += x;
-            }
-        }
-        if solve_matrix(&mut a, &mut phi).is_err() {
+        let (phi, cayley) = transition(&f, h, 1 + N);
+        if !cayley {
             self.counters.transition_fallbacks =
                 self.counters.transition_fallbacks.saturating_add(1);
-            phi = identity();
-            for i in 0..D {
-                for j in 0..D {
-                    phi[i][j] += h * f[i][j];
-                }
-            }
         }
         // Φ P Φᵀ: T = Φ P, then only the upper triangle of T Φᵀ (the result
         // is symmetric), mirrored.
@@ -946,5 +966,46 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         let out = Update::Accepted { nis };
         self.count_composition(out);
         Ok(out)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The block transition equals the Cayley transform solved as one
+    /// `D × D` system (the definition), for a Jacobian with a zero bias row.
+    #[test]
+    fn block_transition_matches_the_full_cayley_solve() {
+        let f: [[f64; 5]; 5] = [
+            [-2e-4, 0.0, 0.0, 0.0, -1.7e-4],
+            [3e-3, -4e-4, -2e-5, 0.0, -1.6e-2],
+            [1e-3, -1e-5, -5e-4, 0.0, 0.0],
+            [-2e-3, 1e-5, 2e-5, -3e-4, 0.0],
+            [0.0, 0.0, 0.0, 0.0, 0.0],
+        ];
+        for h in [1.0, 60.0, 3600.0] {
+            let (phi, cayley) = transition(&f, h, 4);
+            assert!(cayley);
+            let mut a = identity::<f64, 5>();
+            let mut full = identity::<f64, 5>();
+            for i in 0..5 {
+                for j in 0..5 {
+                    a[i][j] -= 0.5 * h * f[i][j];
+                    full[i][j] += 0.5 * h * f[i][j];
+                }
+            }
+            solve_matrix(&mut a, &mut full, 5).unwrap();
+            for i in 0..5 {
+                for j in 0..5 {
+                    assert!(
+                        (phi[i][j] - full[i][j]).abs() <= 1e-14 * (1.0 + full[i][j].abs()),
+                        "h {h}: Φ[{i}][{j}] {} against {}",
+                        phi[i][j],
+                        full[i][j]
+                    );
+                }
+            }
+        }
     }
 }

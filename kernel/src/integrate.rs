@@ -227,7 +227,6 @@ struct PatankarSystem<S, const N: usize> {
 impl<S: Scalar, const N: usize> PatankarSystem<S, N> {
     /// Assemble the stage's `U` for rates `rho` and weights' denominators
     /// `den` (amounts or concentrations, consistently).
-    #[inline(always)]
     fn assemble<const R: usize, const O: usize>(
         model: &Model<S, N, R, O>,
         rho: &[[S; 2]; R],

@@ -107,23 +107,26 @@ pub fn vessel<S: Scalar>() -> Result<ReferenceVessel<S>, Error> {
 /// The scenario's inputs at time `t` (ms since the start of the shift).
 pub fn inputs_at<S: Scalar>(t: Millis) -> Inputs<S, N, I, O> {
     const H: Millis = 3600 * 1000;
-    let ester = if t < 2 * H { 1.0 } else { 0.8 };
+    let ester = if t < 2 * H { S::ONE } else { S::of(0.8) };
+    // In the scalar type (integer milliseconds below 2^24 convert exactly):
+    // no f64 arithmetic on the target.
     let temp_c = if t < 4 * H {
-        25.0
+        S::of(25.0)
     } else if t < 6 * H {
-        25.0 + 10.0 * ((t - 4 * H) as f64) / ((2 * H) as f64)
+        let frac = S::of_u32((t - 4 * H) as u32) / S::of_u32((2 * H) as u32);
+        S::of(25.0) + S::of(10.0) * frac
     } else {
-        35.0
+        S::of(35.0)
     };
-    let q_caustic = PUMP_FLOW;
-    let q_ester = PUMP_FLOW * ester;
+    let q_caustic = S::of(PUMP_FLOW);
+    let q_ester = q_caustic * ester;
     Inputs {
-        inlet_flows: [S::of(q_caustic), S::of(q_ester)],
+        inlet_flows: [q_caustic, q_ester],
         feed: [
             [S::of(FEED_CONCENTRATION), S::ZERO, S::ZERO],
             [S::ZERO, S::of(FEED_CONCENTRATION), S::ZERO],
         ],
-        outlet_flows: [S::of(q_caustic + q_ester)],
-        temperature: S::of(temp_c + 273.15),
+        outlet_flows: [q_caustic + q_ester],
+        temperature: temp_c + S::of(273.15),
     }
 }

@@ -27,6 +27,7 @@ pub const STANDARD_GRAVITY: f64 = 9.806_65;
 /// A tick length in milliseconds as seconds in the scalar type.
 #[inline]
 pub fn seconds<S: Scalar>(ms: u32) -> S {
-    // Exact for ticks below 2^24 ms (4.6 h) in f32, always in f64.
-    S::of(f64::from(ms) * 1e-3)
+    // Correctly rounded (one division of exact operands) for ticks below
+    // 2^24 ms (4.6 h) in f32, always in f64; no f64 arithmetic on the target.
+    S::of_u32(ms) / S::of(1000.0)
 }

@@ -179,6 +179,9 @@ fn mm_acos(x: f32) -> f32 {
 }
 
 const LIBM: &str = "libm f32";
+/// The kernel's own `f32` cube root (`Scalar::cbrt` for `f32`): libm's
+/// `cbrtf` finishes in `f64`, which a Cortex-M4F does in software.
+const KERNEL_CBRT: &str = "kernel f32 (no f64)";
 const MICROMATH: &str = "micromath f32";
 
 fn pow_case(range: &'static str, grid: Grid, exponent: f32) -> Case {
@@ -381,7 +384,10 @@ fn cases() -> Vec<Case> {
             min_reference: f64::MIN_POSITIVE,
             budget: Budget::Geometry,
             reference: Box::new(libm::cbrt),
-            candidates: vec![(LIBM, Box::new(libm::cbrtf))],
+            candidates: vec![
+                (LIBM, Box::new(libm::cbrtf)),
+                (KERNEL_CBRT, Box::new(<f32 as holdup_kernel::Scalar>::cbrt)),
+            ],
         },
         Case {
             function: "acos",
@@ -578,6 +584,12 @@ fn speed_table() {
         "cbrt ([1e-9, 1e6])",
         log(1e-9, 1e6, 1.0),
         libm::cbrtf,
+        None::<fn(f32) -> f32>,
+    );
+    speed_row(
+        "cbrt, kernel f32 routine ([1e-9, 1e6])",
+        log(1e-9, 1e6, 1.0),
+        <f32 as holdup_kernel::Scalar>::cbrt,
         None::<fn(f32) -> f32>,
     );
     speed_row("acos ([−1, 1])", lin(-1.0, 1.0), libm::acosf, Some(mm_acos));

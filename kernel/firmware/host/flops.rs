@@ -94,6 +94,9 @@ impl Scalar for Counted {
     fn of(x: f64) -> Self {
         Counted(x as f32)
     }
+    fn of_u32(x: u32) -> Self {
+        Counted(x as f32)
+    }
     fn to_f64(self) -> f64 {
         f64::from(self.0)
     }

@@ -44,9 +44,11 @@ impl Line {
         self
     }
 
+    /// Decimal digits of `x` (`u32` only: a `u64` would bring the software
+    /// 64-bit division into the image).
     #[inline(never)]
-    fn u64(&mut self, mut x: u64) -> &mut Self {
-        let mut digits = [0u8; 20];
+    fn u32(&mut self, mut x: u32) -> &mut Self {
+        let mut digits = [0u8; 10];
         let mut n = 0;
         loop {
             if let Some(d) = digits.get_mut(n) {
@@ -62,10 +64,6 @@ impl Line {
             self.byte(*d);
         }
         self
-    }
-
-    fn u32(&mut self, x: u32) -> &mut Self {
-        self.u64(u64::from(x))
     }
 
     /// `x` to six significant digits, `d.ddddde±XX`.

@@ -1,12 +1,17 @@
-//! The two compiled-in scenarios, shared by the firmware (in `f32`) and by
+//! The two open-loop compiled-in scenarios, shared by the firmware (in `f32`) and by
 //! `build.rs` (which runs them on the host to produce the expected values).
 //!
-//! * **Analytic** — a constant-volume stirred tank, feed concentration
-//!   stepped from the initial 10 to 100 mol/m³, first-order consumption
-//!   `k = 2e-4 1/s`, one species, exact integrator. Closed form
-//!   `c(t) = c_ss + (c₀ − c_ss)·e^{−(q/V + k)t}`, `c_ss = c_f/(1 + kV/q)`
-//!   (the component balance `V dc/dt = q(c_f − c) − kVc` solved with an
-//!   integrating factor).
+//! * **Analytic** — a constant-volume stirred tank with a feed step,
+//!   exact integrator, in the reference configuration's vessel type (3
+//!   species, up to 2 reactions, 1 outlet; so the image carries one
+//!   monomorphisation of the kernel, not two):
+//!   species 0 fed at 100 mol/m³ from an initial 10 with first-order
+//!   consumption `k = 2e-4 1/s`; species 1 an inert washing out from
+//!   50 mol/m³ (no feed); species 2 an inert filling from 0 towards its
+//!   feed of 20 mol/m³. Closed forms `c(t) = c_ss + (c₀ − c_ss)·e^{−λt}`
+//!   with `λ = q/V + k`, `c_ss = c_f·(q/V)/λ` (the component balance
+//!   `V dc/dt = q(c_f − c) − kVc` solved with an integrating factor; `k = 0`
+//!   for the inerts).
 //! * **Reference** — the kernel's reference configuration
 //!   ([`holdup_kernel::reference`]: 1 vessel, 3 species, 2 reactions, the
 //!   MPRK22 split path) over its 8 h shift at a 1 s tick.
@@ -20,12 +25,12 @@ use holdup_kernel::{
 pub const EXACT_VOLUME: f64 = 10.0;
 /// Analytic scenario: through-flow, m³/s (τ = 10⁴ s).
 pub const EXACT_FLOW: f64 = 1e-3;
-/// Analytic scenario: feed concentration after the step, mol/m³.
-pub const EXACT_FEED: f64 = 100.0;
-/// Analytic scenario: first-order rate constant, 1/s.
+/// Analytic scenario: feed concentration of each species, mol/m³.
+pub const EXACT_FEED: [f64; 3] = [100.0, 0.0, 20.0];
+/// Analytic scenario: first-order rate constant of species 0, 1/s.
 pub const EXACT_K: f64 = 2e-4;
-/// Analytic scenario: initial concentration, mol/m³.
-pub const EXACT_C0: f64 = 10.0;
+/// Analytic scenario: initial concentration of each species, mol/m³.
+pub const EXACT_C0: [f64; 3] = [10.0, 50.0, 0.0];
 /// Analytic scenario: temperature, K (no activation energy: irrelevant).
 pub const EXACT_TEMPERATURE: f64 = 298.15;
 /// Analytic scenario: ticks (1 s each): 3 residence times of the
@@ -44,8 +49,8 @@ pub const REF_TICKS: u32 =
 /// Reference scenario: number of checkpoints.
 pub const REF_POINTS: usize = (REF_TICKS / REF_EVERY) as usize;
 
-/// The analytic scenario's vessel type: 1 species, 1 reaction, 1 outlet.
-pub type ExactVessel<S> = Vessel<S, 1, 1, 1>;
+/// The analytic scenario's vessel type: the reference configuration's.
+pub type ExactVessel<S> = Vessel<S, 3, 2, 1>;
 
 /// The analytic scenario's vessel at `t = 0`.
 pub fn exact_vessel<S: Scalar>() -> Result<ExactVessel<S>, Error> {
@@ -62,14 +67,14 @@ pub fn exact_vessel<S: Scalar>() -> Result<ExactVessel<S>, Error> {
         tick_ms: 1000,
         method: Method::Exact,
     };
-    // Capacity 1 each: these pushes cannot be refused.
+    // Capacities 1 and 2: these pushes cannot be refused.
     let _ = spec.outlets.push(Outlet::Measured);
     let _ = spec.reactions.push(ReactionSpec {
-        stoichiometry: [-S::ONE],
+        stoichiometry: [-S::ONE, S::ZERO, S::ZERO],
         forward: Kinetics {
             rate_constant: S::of(EXACT_K),
             activation_energy: S::ZERO,
-            orders: [S::ONE],
+            orders: [S::ONE, S::ZERO, S::ZERO],
         },
         reverse: None,
         reference_temperature: S::of(EXACT_TEMPERATURE),
@@ -78,17 +83,17 @@ pub fn exact_vessel<S: Scalar>() -> Result<ExactVessel<S>, Error> {
         Model::new(spec)?,
         &holdup_kernel::InitialState {
             volume: S::of(EXACT_VOLUME),
-            concentrations: [S::of(EXACT_C0)],
+            concentrations: EXACT_C0.map(S::of),
             temperature: S::of(EXACT_TEMPERATURE),
         },
     )
 }
 
-/// The analytic scenario's inputs (held for the whole run).
-pub fn exact_inputs<S: Scalar>() -> Inputs<S, 1, 1, 1> {
+/// The analytic scenario's inputs (held for the whole run): one inlet.
+pub fn exact_inputs<S: Scalar>() -> Inputs<S, 3, 1, 1> {
     Inputs {
         inlet_flows: [S::of(EXACT_FLOW)],
-        feed: [[S::of(EXACT_FEED)]],
+        feed: [EXACT_FEED.map(S::of)],
         outlet_flows: [S::of(EXACT_FLOW)],
         temperature: S::of(EXACT_TEMPERATURE),
     }

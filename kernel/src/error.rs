@@ -54,6 +54,9 @@ pub enum Error {
     /// and diagonal (only first-order consumption of species that no reaction
     /// produces is allowed).
     ConfigExactNotApplicable,
+    /// A reference integrator (`ReferenceRk4`, `ReferenceEuler`) was asked
+    /// of a kernel built without the `reference-methods` feature.
+    ConfigMethodUnavailable,
     /// The initial holdup is negative, NaN, or above the vessel's capacity.
     InitialVolume,
     /// An initial concentration is negative, NaN or infinite (species index).
@@ -162,6 +165,9 @@ impl Error {
             }
             Error::ConfigExactNotApplicable => {
                 "exact integrator needs a linear, uncoupled network (first-order consumption only, of species no reaction produces)"
+            }
+            Error::ConfigMethodUnavailable => {
+                "reference integrators are not in this build (kernel feature `reference-methods`)"
             }
             Error::InitialVolume => "initial holdup must be finite, non-negative and within the vessel capacity",
             Error::InitialConcentration(_) => "initial concentration must be finite and non-negative",

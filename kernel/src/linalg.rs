@@ -12,6 +12,19 @@ use crate::Scalar;
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub(crate) struct Singular;
 
+/// Swap rows `i` and `j` element by element (`<[T]>::swap` on whole rows
+/// goes through `memmove` on the Cortex-M4F, 1.5 KiB of image for this).
+fn swap_rows<S: Scalar, const N: usize>(a: &mut [[S; N]; N], i: usize, j: usize) {
+    if i >= N || j >= N {
+        return;
+    }
+    for k in 0..N {
+        let t = a[i][k];
+        a[i][k] = a[j][k];
+        a[j][k] = t;
+    }
+}
+
 /// Solve `a · x = b` in place for the leading `m × m` block of `a` and the
 /// first `m` entries of `b` (`m ≤ N`; the rest is neither read nor
 /// written): on success `b[..m]` holds `x`. `a` is destroyed.
@@ -36,7 +49,7 @@ pub(crate) fn solve<S: Scalar, const N: usize>(
             return Err(Singular);
         }
         if piv != col {
-            a.swap(piv, col);
+            swap_rows(a, piv, col);
             b.swap(piv, col);
         }
         let d = a[col][col];
@@ -96,8 +109,8 @@ pub(crate) fn solve_matrix<S: Scalar, const N: usize>(
             return Err(Singular);
         }
         if piv != col {
-            a.swap(piv, col);
-            b.swap(piv, col);
+            swap_rows(a, piv, col);
+            swap_rows(b, piv, col);
         }
         let d = a[col][col];
         for row in col + 1..m {

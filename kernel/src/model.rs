@@ -119,10 +119,12 @@ pub enum Method {
     /// exact transport step (Strang splitting). See [`crate::integrate`].
     Mprk22,
     /// Reference only: classical RK4. Loses positivity at large `k·h`;
-    /// negative amounts are clamped and flagged.
+    /// negative amounts are clamped and flagged. Needs the kernel feature
+    /// `reference-methods` (on by default).
     ReferenceRk4,
     /// Reference only: explicit Euler, what a PLC block usually does. Goes
     /// negative at `λh > 1`; negative amounts are clamped and flagged.
+    /// Needs the kernel feature `reference-methods` (on by default).
     ReferenceEuler,
 }
 
@@ -353,7 +355,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
     /// Errors: [`Error::ConfigZeroTick`], [`Error::ConfigMinHoldup`],
     /// [`Error::ConfigOutlet`], [`Error::ReactionNoReactant`],
     /// [`Error::ReactionOrder`], [`Error::ReactionRateConstant`],
-    /// [`Error::ConfigExactNotApplicable`].
+    /// [`Error::ConfigExactNotApplicable`], [`Error::ConfigMethodUnavailable`].
     pub fn new(spec: VesselSpec<S, N, R, O>) -> Result<Self, Error> {
         if spec.tick_ms == 0 {
             return Err(Error::ConfigZeroTick);
@@ -457,6 +459,11 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
         }
         if spec.method == Method::Exact && !exact_class {
             return Err(Error::ConfigExactNotApplicable);
+        }
+        if cfg!(not(feature = "reference-methods"))
+            && matches!(spec.method, Method::ReferenceRk4 | Method::ReferenceEuler)
+        {
+            return Err(Error::ConfigMethodUnavailable);
         }
         Ok(Self {
             geometry: spec.geometry,

@@ -706,7 +706,9 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
                 .get(i)
                 .is_some_and(|p| now.saturating_sub(p.drawn_ms) > max_age);
             if overdue {
-                let p = self.pending.swap_remove(i);
+                let Some(p) = self.take_pending(i) else {
+                    break;
+                };
                 self.release(&p);
                 self.counters.lab_expired = self.counters.lab_expired.saturating_add(1);
             } else {
@@ -714,6 +716,23 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
             }
         }
         report
+    }
+
+    /// Remove pending sample `i`, the last one taking its place (the order
+    /// of `Vec::swap_remove`), written with a swap of two distinct elements
+    /// and a pop: `swap_remove` moves with `ptr::copy`, which brings the
+    /// general `memmove` (1.5 KiB) into the Cortex-M4F image for this alone.
+    fn take_pending(&mut self, i: usize) -> Option<Pending<S, D>> {
+        let last = self.pending.len().checked_sub(1)?;
+        if i < last {
+            let (head, tail) = self.pending.split_at_mut(last);
+            if let (Some(a), Some(b)) = (head.get_mut(i), tail.first_mut()) {
+                core::mem::swap(a, b);
+            }
+        } else if i > last {
+            return None;
+        }
+        self.pending.pop()
     }
 
     /// Undo the covariance reduction anticipated for a pending sample that
@@ -943,7 +962,9 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         let Some(pos) = self.pending.iter().position(|p| p.id == id) else {
             return Err(Error::LabSampleNotPending);
         };
-        let pend = self.pending.swap_remove(pos);
+        let Some(pend) = self.take_pending(pos) else {
+            return Err(Error::LabSampleNotPending);
+        };
         let nu = c - pend.predicted;
         if !nu.is_finite() {
             self.release(&pend);

@@ -27,7 +27,9 @@
 //! of the computed outlets (each a level inversion of bounded iterations),
 //! then the integrator's fixed work; no heap, no recursion, no panic.
 
-use crate::integrate::{euler_step, exact, mprk22_step, rk4_step, TickFrame, TickRhs};
+#[cfg(feature = "reference-methods")]
+use crate::integrate::{euler_step, rk4_step, TickRhs};
+use crate::integrate::{exact, mprk22_step, TickFrame};
 use crate::model::{Inputs, Method, Model, Outlet};
 use crate::status::{MethodUsed, StatusFlags, StepReport};
 use crate::units::Millis;
@@ -452,7 +454,6 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
         rep: &mut StepReport<S>,
     ) -> Option<[S; N]> {
         let model = &self.model;
-        let rhs = TickRhs { model, frame };
         let want_exact = match model.method {
             Method::Auto | Method::Exact => model.exact_class,
             _ => false,
@@ -468,29 +469,33 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
                 rep.flags |= StatusFlags::METHOD_FALLBACK;
             }
         }
-        let reference = |y1: [S; N]| {
-            let mut d = [S::ZERO; N];
-            for i in 0..N {
-                d[i] = y1[i] - y0[i];
-            }
-            d
-        };
-        match model.method {
-            Method::ReferenceRk4 => {
-                rep.method = MethodUsed::ReferenceRk4;
-                rep.rate_evaluations = 4;
-                Some(reference(rk4_step(&rhs, S::ZERO, y0, frame.h)))
-            }
-            Method::ReferenceEuler => {
-                rep.method = MethodUsed::ReferenceEuler;
-                rep.rate_evaluations = 1;
-                Some(reference(euler_step(&rhs, S::ZERO, y0, frame.h)))
-            }
-            _ => {
-                rep.method = MethodUsed::Mprk22;
-                mprk22_step(model, frame, y0, &mut rep.rate_evaluations).ok()
+        #[cfg(feature = "reference-methods")]
+        {
+            let rhs = TickRhs { model, frame };
+            let reference = |y1: [S; N]| {
+                let mut d = [S::ZERO; N];
+                for i in 0..N {
+                    d[i] = y1[i] - y0[i];
+                }
+                d
+            };
+            match model.method {
+                Method::ReferenceRk4 => {
+                    rep.method = MethodUsed::ReferenceRk4;
+                    rep.rate_evaluations = 4;
+                    return Some(reference(rk4_step(&rhs, S::ZERO, y0, frame.h)));
+                }
+                Method::ReferenceEuler => {
+                    rep.method = MethodUsed::ReferenceEuler;
+                    rep.rate_evaluations = 1;
+                    return Some(reference(euler_step(&rhs, S::ZERO, y0, frame.h)));
+                }
+                _ => {}
             }
         }
+        // Without the feature `Model::new` refuses the reference methods.
+        rep.method = MethodUsed::Mprk22;
+        mprk22_step(model, frame, y0, &mut rep.rate_evaluations).ok()
     }
 }
 
@@ -530,6 +535,34 @@ mod tests {
             },
         )
         .unwrap()
+    }
+
+    /// The reference integrators exist only with the `reference-methods`
+    /// feature; without it a model asking for one is refused at
+    /// configuration (CI runs the kernel's tests both ways).
+    #[test]
+    fn reference_methods_follow_their_feature() {
+        for method in [Method::ReferenceRk4, Method::ReferenceEuler] {
+            let spec = VesselSpec {
+                geometry: Geometry::new(Shape::VerticalCylinder {
+                    diameter: 1.0,
+                    height: 2.0,
+                    bottom: Bottom::Flat,
+                })
+                .unwrap(),
+                outlets: Vec::from_slice(&[Outlet::Measured]).unwrap(),
+                reactions: Vec::new(),
+                min_holdup: 0.01,
+                tick_ms: 1000,
+                method,
+            };
+            let model: Result<Model<f64, 2, 1, 1>, Error> = Model::new(spec);
+            if cfg!(feature = "reference-methods") {
+                assert!(model.is_ok());
+            } else {
+                assert_eq!(model.err(), Some(Error::ConfigMethodUnavailable));
+            }
+        }
     }
 
     fn flows(q_in: f64, q_out: f64) -> Inputs<f64, 2, 1, 1> {

@@ -20,6 +20,9 @@ struct Line {
 
 #[cfg(not(feature = "defmt"))]
 impl Line {
+    // Not inlined, like every method here: the report runs a few dozen
+    // times, so its size counts and its speed does not.
+    #[inline(never)]
     fn new() -> Self {
         Self {
             buf: [0; 160],
@@ -134,6 +137,7 @@ impl Report {
     }
 
     /// A plain line of text.
+    #[inline(never)]
     pub fn line(&mut self, s: &str) {
         #[cfg(not(feature = "defmt"))]
         self.emit(Line::new().str(s));
@@ -142,6 +146,7 @@ impl Report {
     }
 
     /// One check's outcome.
+    #[inline(never)]
     pub fn check(&mut self, name: &str, points: u32, max_rel: f32, tol: f32, pass: bool) {
         let verdict = if pass { "pass" } else { "FAIL" };
         #[cfg(not(feature = "defmt"))]
@@ -173,6 +178,7 @@ impl Report {
     /// `check <name>: <points> checkpoints, <what> <measured> (tolerance
     /// <tol> <unit>) pass|FAIL`.
     #[allow(clippy::too_many_arguments)]
+    #[inline(never)]
     pub fn check_value(
         &mut self,
         name: &str,
@@ -216,6 +222,7 @@ impl Report {
     }
 
     /// A named value with a unit.
+    #[inline(never)]
     pub fn value(&mut self, name: &str, x: f32, unit: &str) {
         #[cfg(not(feature = "defmt"))]
         self.emit(Line::new().str(name).str(": ").f32(x).str(" ").str(unit));
@@ -224,6 +231,7 @@ impl Report {
     }
 
     /// A named count with a unit.
+    #[inline(never)]
     pub fn count(&mut self, name: &str, x: u32, unit: &str) {
         #[cfg(not(feature = "defmt"))]
         self.emit(Line::new().str(name).str(": ").u32(x).str(" ").str(unit));
@@ -232,6 +240,7 @@ impl Report {
     }
 
     /// Cost of a tick over a run: min, mean, max.
+    #[inline(never)]
     pub fn cost(&mut self, name: &str, unit: &str, ticks: u32, min: u32, mean: f32, max: u32) {
         #[cfg(not(feature = "defmt"))]
         self.emit(

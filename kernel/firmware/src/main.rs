@@ -347,20 +347,24 @@ fn reference_run(out: &mut Report, meter: &platform::Meter, delay: &mut platform
         &expected::FLOPS_REFERENCE,
     );
     let unit = <platform::Meter as Meter>::UNIT;
+    let mut met = true;
     if unit == "instructions" {
-        // Reported, not gated: meeting it needs kernel changes (see README).
+        // Gated: on the emulator the count is exact and the same on every
+        // run, so a regression fails CI (a real board counts cycles: not
+        // gated there).
         let mean = stats.mean();
+        met = mean < TARGET_OPEN_LOOP as f32;
         out.value(
-            "target open-loop tick mean < 1500 instructions (not gated)",
+            "target open-loop tick mean < 1500 instructions (gated)",
             mean,
-            if mean < TARGET_OPEN_LOOP as f32 {
+            if met {
                 "instructions: met"
             } else {
                 "instructions: MISSED"
             },
         );
     }
-    ok
+    ok && met
 }
 
 /// The reference shift with the observer: checked against the host's `f32`
@@ -571,20 +575,22 @@ fn observed_run(out: &mut Report, meter: &platform::Meter, delay: &mut platform:
     );
     out.count("  ticks with a lab sample pending", stats.busy_ticks, "");
     out.value("  mean of those ticks", stats.busy_mean(), unit);
+    let mut met = true;
     if unit == "instructions" {
-        // Reported, not gated (see README).
+        // Gated, as the open-loop tick.
         let mean = stats.mean();
+        met = mean < TARGET_OBSERVER as f32;
         out.value(
-            "target observer tick mean < 6000 instructions (not gated)",
+            "target observer tick mean < 6000 instructions (gated)",
             mean,
-            if mean < TARGET_OBSERVER as f32 {
+            if met {
                 "instructions: met"
             } else {
                 "instructions: MISSED"
             },
         );
     }
-    ok_host && ok_plant && ok_open && ok_bias
+    ok_host && ok_plant && ok_open && ok_bias && met
 }
 
 fn abs(x: f32) -> f32 {

@@ -14,7 +14,7 @@
 //!   for the inerts).
 //! * **Reference** — the kernel's reference configuration
 //!   ([`holdup_kernel::reference`]: 1 vessel, 3 species, 2 reactions, the
-//!   MPRK22 split path) over its 8 h shift at a 1 s tick.
+//!   MPRK22 path) over its 8 h shift at a 1 s tick.
 
 use holdup_kernel::{
     Bottom, Error, Geometry, Inputs, Kinetics, Method, Model, Outlet, ReactionSpec, Scalar, Shape,

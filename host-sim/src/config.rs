@@ -23,8 +23,9 @@ use toml::de::{DeTable, DeValue};
 use toml::Spanned;
 
 use crate::plant::{
-    limits, BiasMeter, Estimator, Initial, Inlet, Interpolation, Kinetics, LogFormat, LogOptions,
-    Outlet, OutletKind, Plant, Reaction, ScalarKind, Signal, Species, TagOptions, TimeFormat,
+    limits, Analyser, BiasMeter, Estimator, Initial, Inlet, Interpolation, Kinetics, LogFormat,
+    LogOptions, Outlet, OutletKind, Plant, Reaction, ScalarKind, Signal, Species, TagOptions,
+    TimeFormat,
 };
 use crate::units::{self, Kind, ToSi, UnitError};
 
@@ -104,6 +105,7 @@ const TOP_KEYS: &[&str] = &[
     "outlet",
     "temperature",
     "level",
+    "analyser",
     "reaction",
     "initial",
     "log",
@@ -144,6 +146,7 @@ const REACTION_KEYS: &[&str] = &[
     "reference_temperature",
     "reverse",
 ];
+const ANALYSER_KEYS: &[&str] = &["species", "reading", "sigma", "cycle"];
 const REVERSE_KEYS: &[&str] = &["rate_constant", "activation_energy", "orders"];
 const INITIAL_KEYS: &[&str] = &["volume", "level", "concentrations", "temperature"];
 const LOG_KEYS: &[&str] = &["format", "time", "time_column", "max_age"];
@@ -1088,6 +1091,21 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
         )),
     };
 
+    // [[analyser]]
+    let mut analysers: Vec<Analyser> = Vec::new();
+    for t in array_section(root, "analyser", limits::SPECIES, "plant::limits::SPECIES")? {
+        let a = read_analyser(&t, &species, u64::from(tick_ms), &mut tags)?;
+        if analysers.iter().any(|b| b.species == a.species) {
+            let (name, at) = t.string("species")?.unwrap_or(("", t.at));
+            return Err(t.err(
+                at,
+                "species",
+                format!("a second analyser for \"{name}\"; give each species at most one"),
+            ));
+        }
+        analysers.push(a);
+    }
+
     // [[reaction]]
     let mut reactions = Vec::new();
     let mut seen = Vec::new();
@@ -1208,6 +1226,7 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
         outlets,
         temperature,
         level,
+        analysers,
         reactions,
         initial,
         tags: tag_options,
@@ -1216,7 +1235,63 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
     })
 }
 
-/// A constant must not be negative (flows, concentrations).
+/// `[[analyser]]`: an online analyser of one species.
+fn read_analyser(
+    t: &Tbl<'_>,
+    species: &[Species],
+    tick_ms: u64,
+    tags: &mut TagUses,
+) -> R<Analyser> {
+    t.check_keys(ANALYSER_KEYS)?;
+    let names: Vec<&str> = species.iter().map(|s| s.name.as_str()).collect();
+    let (name, at) = t
+        .string("species")?
+        .ok_or_else(|| t.missing("species", &format!("one of {}", list(&names))))?;
+    let index = species.iter().position(|s| s.name == name).ok_or_else(|| {
+        t.err(
+            at,
+            "species",
+            format!(
+                "unknown species \"{name}\"; defined species: {}",
+                list(&names)
+            ),
+        )
+    })?;
+    let conv = Conv::Concentration(species[index].molar_mass);
+    let reading = t.signal("reading", conv, TagMode::Only)?.ok_or_else(|| {
+        t.missing(
+            "reading",
+            "the analyser's tag and unit, e.g. { tag = \"AI-201\", unit = \"mol/L\" }",
+        )
+    })?;
+    let sigma = t
+        .req_quantity(
+            "sigma",
+            conv,
+            "1σ of one reading, e.g. { value = 0.02, unit = \"mol/L\" }",
+        )?
+        .positive(t.ctx)?
+        .si;
+    let cycle_ms = match t.duration("cycle")? {
+        None => tick_ms,
+        Some((ms, _)) if ms >= tick_ms => ms,
+        Some((_, at)) => {
+            return Err(t.err(
+                at,
+                "cycle",
+                format!("the analyser cycle must be at least the tick ({tick_ms} ms)"),
+            ))
+        }
+    };
+    Ok(Analyser {
+        species: index,
+        reading: tags.signal(reading, false),
+        sigma,
+        cycle_ms,
+    })
+}
+
+/// A constant must not be negative (flows, concentrations)./// A constant must not be negative (flows, concentrations).
 fn non_negative_source(ctx: &Ctx<'_>, s: Source) -> R<Source> {
     match s {
         Source::Const(q) => Ok(Source::Const(q.non_negative(ctx)?)),
@@ -2307,6 +2382,118 @@ volume = { value = 1, unit = "m3" }
 
     fn close(a: f64, b: f64) -> bool {
         (a - b).abs() <= 1e-12 * b.abs().max(1e-300)
+    }
+
+    /// `EXAMPLE` with `[[analyser]]` entries appended.
+    fn with_analyser(entries: &str) -> String {
+        format!("{EXAMPLE}\n{entries}")
+    }
+
+    #[test]
+    fn analyser_reads_into_si_with_its_cycle() {
+        let text = with_analyser(
+            r#"[[analyser]]
+species = "NaOH"
+reading = { tag = "AI-201", unit = "mol/L" }
+sigma = { value = 0.004, unit = "mol/L" }
+cycle = "5 min"
+
+[[analyser]]
+species = "EtOAc"
+reading = { tag = "AI-202", unit = "g/L" }
+sigma = { value = 0.1, unit = "g/L" }
+"#,
+        );
+        let p = ok(&text);
+        assert_eq!(p.analysers.len(), 2);
+        let a = &p.analysers[0];
+        assert_eq!(a.species, 0);
+        // mol/L → mol/m³: ×1000 (SI prefixes).
+        assert_eq!(a.reading.tag(), Some("AI-201"));
+        assert!(close(a.reading.to_si(0.1), 100.0));
+        assert!(close(a.sigma, 4.0));
+        assert_eq!(a.cycle_ms, 300_000);
+        // g/L of ethyl acetate (88.106 g/mol): 1 g/L = 1000/88.106 mol/m³.
+        let b = &p.analysers[1];
+        assert_eq!(b.species, 1);
+        assert!(close(b.reading.to_si(88.106), 1000.0));
+        assert!(close(b.sigma, 100.0 / 88.106));
+        // No cycle: the tick.
+        assert_eq!(b.cycle_ms, 1000);
+        // The analyser's tag is a log tag like any other.
+        assert!(p.tags.iter().any(|t| t.tag == "AI-202"));
+    }
+
+    #[test]
+    fn analyser_errors_name_line_and_key() {
+        let good = r#"[[analyser]]
+species = "NaOH"
+reading = { tag = "AI-201", unit = "mol/L" }
+sigma = { value = 0.004, unit = "mol/L" }
+"#;
+        let cases: [(&str, &str, &str, &str, &[&str]); 6] = [
+            (
+                "species = \"NaOH\"",
+                "species = \"Soda\"",
+                "species",
+                "species = \"Soda\"",
+                &["unknown species \"Soda\"", "NaOH", "EtOAc"],
+            ),
+            (
+                "reading = { tag = \"AI-201\", unit = \"mol/L\" }",
+                "reading = { value = 0.1, unit = \"mol/L\" }",
+                "reading.value",
+                "reading = { value",
+                &["read from the log, give its tag"],
+            ),
+            (
+                "reading = { tag = \"AI-201\", unit = \"mol/L\" }",
+                "reading = { tag = \"AI-201\", unit = \"m3/h\" }",
+                "reading.unit",
+                "\"AI-201\", unit = \"m3/h\"",
+                &["unknown concentration unit", "mol/L"],
+            ),
+            (
+                "sigma = { value = 0.004, unit = \"mol/L\" }",
+                "sigma = { value = 0, unit = \"mol/L\" }",
+                "sigma",
+                "sigma = { value = 0",
+                &["must be positive"],
+            ),
+            (
+                "sigma = { value = 0.004, unit = \"mol/L\" }",
+                "sigma = { value = 0.004, unit = \"mol/L\" }\ncycle = \"100 ms\"",
+                "cycle",
+                "cycle = ",
+                &["at least the tick"],
+            ),
+            (
+                "sigma = { value = 0.004, unit = \"mol/L\" }",
+                "sigma = { value = 0.004, unit = \"mol/L\" }\ndelay = \"1 min\"",
+                "delay",
+                "delay = ",
+                &["unknown key", "cycle"],
+            ),
+        ];
+        for (from, to, key, needle, parts) in cases {
+            let text = with_analyser(&edit(good, from, to));
+            let e = err(&text);
+            check(&e, &text, needle, &format!("[[analyser]] {key}"), parts);
+        }
+        // Missing reading.
+        let text = with_analyser(&edit(
+            good,
+            "reading = { tag = \"AI-201\", unit = \"mol/L\" }\n",
+            "",
+        ));
+        let e = err(&text);
+        assert_eq!(e.key, "[[analyser]] reading", "{e}");
+        assert!(e.message.contains("tag"), "{e}");
+        // Two analysers for one species.
+        let text = with_analyser(&format!("{good}\n{}", edit(good, "AI-201", "AI-209")));
+        let e = err(&text);
+        assert_eq!(e.key, "[[analyser]] species", "{e}");
+        assert!(e.message.contains("second analyser"), "{e}");
     }
 
     #[test]

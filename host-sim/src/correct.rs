@@ -1,6 +1,7 @@
 //! The corrected estimate in a replay: the kernel's observer, fed with the
-//! level signal every tick and with lab results at the times they were
-//! drawn and known, next to the open-loop balance.
+//! level signal every tick, the online analysers' readings when there is a
+//! new analysis, and lab results at the times they were drawn and known,
+//! next to the open-loop balance.
 
 use heapless::Vec as HVec;
 use holdup_kernel::diagnostics::{ChiSquareBounds, NisMonitor, NisState};
@@ -27,6 +28,23 @@ pub struct LabTally {
     pub not_pending: u64,
 }
 
+/// What happened to the online analysers' readings.
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct AnalyserTally {
+    /// Fused.
+    pub fused: u64,
+    /// Rejected by the innovation gate (outliers).
+    pub rejected: u64,
+    /// Skipped by the observer (vessel near empty).
+    pub skipped: u64,
+}
+
+/// One online analyser in the replay's observer.
+struct AnalyserFeed {
+    species: usize,
+    sigma: f64,
+}
+
 /// Level innovations in the model-mismatch window.
 pub const NIS_WINDOW: usize = 120;
 
@@ -48,6 +66,12 @@ pub struct Corrector<S, const N: usize, const D: usize> {
     pub tally: LabTally,
     /// Names of the biased meters, in state order.
     pub bias_names: Vec<String>,
+    analysers: Vec<AnalyserFeed>,
+    /// Agreement of the corrected estimate with the analysers' readings, a
+    /// priori (before each reading is fused).
+    pub analyser_comparison: Comparison,
+    /// Analyser outcomes.
+    pub analyser_tally: AnalyserTally,
 }
 
 /// Corrected state at one time.
@@ -130,15 +154,51 @@ impl<S: Scalar, const N: usize, const D: usize> Corrector<S, N, D> {
             comparison: Comparison::new(plant.species.len()),
             tally: LabTally::default(),
             bias_names: est.bias_meters.iter().map(|m| m.name.clone()).collect(),
+            analysers: plant
+                .analysers
+                .iter()
+                .map(|a| AnalyserFeed {
+                    species: a.species,
+                    sigma: a.sigma,
+                })
+                .collect(),
+            analyser_comparison: Comparison::new(plant.species.len()),
+            analyser_tally: AnalyserTally::default(),
         })
     }
 
     /// Everything known at time `t` before the tick from `t`: the level
-    /// reading, lab samples drawn up to `t`, lab results known by `t`.
-    pub fn measure(&mut self, t: i64, level: Option<f64>, labs: &[LabResult]) {
+    /// reading, the analysers' new analyses (`analysers[k]` for the
+    /// plant's analyser `k`; `None` when there is none at `t`: the replay
+    /// passes one reading per analyser cycle), lab samples drawn up to `t`,
+    /// lab results known by `t`.
+    pub fn measure(
+        &mut self,
+        t: i64,
+        level: Option<f64>,
+        analysers: &[Option<f64>],
+        labs: &[LabResult],
+    ) {
         if let Some(z) = level.filter(|z| z.is_finite()) {
             let out = self.obs.update_level(S::of(z));
             let _ = self.nis.record(&out);
+        }
+        for (a, reading) in self.analysers.iter().zip(analysers.iter()) {
+            let Some(c) = reading.filter(|c| c.is_finite()) else {
+                continue;
+            };
+            let (est, _) = self.obs.concentrations();
+            if let Some(e) = est.get(a.species) {
+                self.analyser_comparison.add(a.species, e.to_f64(), c, t);
+            }
+            match self
+                .obs
+                .update_concentration(a.species, S::of(c), S::of(a.sigma))
+            {
+                Update::Accepted { .. } => self.analyser_tally.fused += 1,
+                Update::Rejected { .. } => self.analyser_tally.rejected += 1,
+                Update::Skipped => self.analyser_tally.skipped += 1,
+            }
         }
         while let Some(l) = labs.get(self.next_draw) {
             if l.sample_time > t {

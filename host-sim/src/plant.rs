@@ -105,6 +105,22 @@ pub struct Outlet {
     pub kind: OutletKind,
 }
 
+/// An online analyser: one species' concentration read from the log and
+/// fused by the estimator.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Analyser {
+    /// Species index.
+    pub species: usize,
+    /// The reading, mol/m³ (a log tag).
+    pub reading: Signal,
+    /// 1σ of one reading, mol/m³.
+    pub sigma: f64,
+    /// Shortest time between fused readings, ms: the analyser's cycle. A
+    /// historian that repeats one analysis every tick must not count it as
+    /// many independent readings.
+    pub cycle_ms: u64,
+}
+
 /// One direction of a rate law, SI.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Kinetics {
@@ -272,6 +288,8 @@ pub struct Plant {
     pub temperature: Signal,
     /// Measured level, m (for comparison only).
     pub level: Option<Signal>,
+    /// Online analysers (at most one per species).
+    pub analysers: Vec<Analyser>,
     /// Reactions.
     pub reactions: Vec<Reaction>,
     /// Initial state.

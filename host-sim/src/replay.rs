@@ -238,6 +238,8 @@ struct Sources {
     outlet_flow: Vec<Option<Source>>,
     temperature: Source,
     level: Option<Source>,
+    /// Each analyser's species and reading.
+    analysers: Vec<(usize, Source)>,
 }
 
 impl Sources {
@@ -263,7 +265,25 @@ impl Sources {
                 .collect(),
             temperature: Source::new(plant, &plant.temperature),
             level: plant.level.as_ref().map(|l| Source::new(plant, l)),
+            analysers: plant
+                .analysers
+                .iter()
+                .map(|a| (a.species, Source::new(plant, &a.reading)))
+                .collect(),
         }
+    }
+
+    /// Each analyser's reading at this tick (mol/m³): `Some` only for a
+    /// point stored at the tick (`Exact`) that is finite. An interpolated
+    /// or held value is not a new analysis.
+    fn analyser_readings(&self, samples: &[crate::log::TagSample]) -> Vec<Option<f64>> {
+        self.analysers
+            .iter()
+            .map(|(_, src)| {
+                let (c, st) = src.read(samples);
+                (st == SampleState::Exact && c.is_finite()).then_some(c)
+            })
+            .collect()
     }
 
     /// The kernel inputs held over the tick from the current samples, the
@@ -396,6 +416,10 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
             header.push_str(&format!(",{n}_sigma_mol_m3,{n}_open_loop_mol_m3"));
         }
     }
+    for a in &plant.analysers {
+        let n = csv_name(&plant.species[a.species].name);
+        header.push_str(&format!(",{n}_analyser_mol_m3"));
+    }
     if let Some(c) = &corr {
         for b in &c.bias_names {
             let n = csv_name(b);
@@ -453,6 +477,14 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
         .collect();
     let mut s_outflow = Series::new("total outflow (balance)", Color::nth(1));
 
+    let mut analyser_marks: Vec<Markers> = plant
+        .analysers
+        .iter()
+        .map(|_| Markers::new("analyser", Color::nth(7)))
+        .collect();
+    let mut analyser_open = Comparison::new(n_species);
+    let mut analyser_last: Vec<Option<i64>> = vec![None; plant.analysers.len()];
+    let mut analyser_repeats: u64 = 0;
     let mut open_cmp = Comparison::new(n_species);
     let mut lab_cursor = 0usize;
     let mut tally = Tally::default();
@@ -493,6 +525,23 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
     let mut row = String::new();
     while let Some(samples) = reader.sample(t)? {
         let (u, quality, flows_now, measured_level) = sources.inputs::<S, N>(samples);
+        // One reading per analyser cycle: a historian that repeats the last
+        // analysis every tick must not count it as new information.
+        let mut analysed = sources.analyser_readings(samples);
+        for ((c, last), a) in analysed
+            .iter_mut()
+            .zip(analyser_last.iter_mut())
+            .zip(plant.analysers.iter())
+        {
+            if c.is_some() {
+                if last.is_some_and(|l| (t - l) < a.cycle_ms as i64) {
+                    *c = None;
+                    analyser_repeats += 1;
+                } else {
+                    *last = Some(t);
+                }
+            }
+        }
 
         // Open loop at t; lab samples drawn up to t compared with it.
         let open_conc = ves.concentrations().map(|c| c.to_f64());
@@ -507,9 +556,21 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
             }
             lab_cursor += 1;
         }
-        // Corrected: the level now, lab draws and results up to now.
+        // Analysers against the open loop (every new analysis).
+        for ((species, _), (c, m)) in sources
+            .analysers
+            .iter()
+            .zip(analysed.iter().zip(analyser_marks.iter_mut()))
+        {
+            if let Some(c) = c {
+                analyser_open.add(*species, open_conc[*species], *c, t);
+                m.push(hours(t), *c);
+            }
+        }
+        // Corrected: the level and analysers now, lab draws and results up
+        // to now.
         let cstate = corr.as_mut().map(|c| {
-            c.measure(t, measured_level, &labs);
+            c.measure(t, measured_level, &analysed, &labs);
             c.state()
         });
         let (v, z, conc) = match (&cstate, &corr) {
@@ -657,6 +718,12 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
                     row.push_str(&format!(",{:.3e},{:.6e}", cs.conc_sigma[i], open_conc[i]));
                 }
             }
+            for c in &analysed {
+                match c {
+                    Some(c) => row.push_str(&format!(",{c:.6e}")),
+                    None => row.push(','),
+                }
+            }
             if let Some(cs) = &cstate {
                 for b in &cs.bias {
                     row.push_str(&format!(",{:.5},{:.5}", b.0, b.1));
@@ -752,6 +819,14 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
         }
         p.series.push(s);
         p.markers.push(m);
+        for (a, marks) in plant.analysers.iter().zip(analyser_marks.iter_mut()) {
+            if a.species == i {
+                p.markers.push(std::mem::replace(
+                    marks,
+                    Markers::new("analyser", Color::nth(7)),
+                ));
+            }
+        }
         p.bands = bands.clone();
         conc_panels.push(p);
     }
@@ -866,8 +941,30 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
             "lab_rejected_by_gate": c.tally.rejected,
             "lab_not_drawn": c.tally.not_drawn,
             "lab_result_without_pending_sample": c.tally.not_pending,
+            "analyser_fused": c.analyser_tally.fused,
+            "analyser_rejected_by_gate": c.analyser_tally.rejected,
+            "analyser_skipped": c.analyser_tally.skipped,
         })
     });
+    let analyser_agree_open = analyser_open.results();
+    let analyser_agree_corr = corr.as_ref().map(|c| c.analyser_comparison.results());
+    let analyser_json: Vec<serde_json::Value> = plant
+        .analysers
+        .iter()
+        .map(|a| {
+            let mut v = json!({
+                "species": plant.species[a.species].name,
+                "tag": a.reading.tag(),
+                "sigma_mol_m3": a.sigma,
+                "cycle_ms": a.cycle_ms,
+                "open_loop": agreement_json(&analyser_agree_open[a.species]),
+            });
+            if let Some(c) = &analyser_agree_corr {
+                v["corrected_before_fusing"] = agreement_json(&c[a.species]);
+            }
+            v
+        })
+        .collect();
     let level_json = if level_err.2 > 0 {
         json!({
             "rmse_m": (level_err.0 / level_err.2 as f64).sqrt(),
@@ -915,6 +1012,8 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
         } else {
             serde_json::Value::Null
         },
+        "analyser_comparison": analyser_json,
+        "analyser_repeats_within_cycle": analyser_repeats,
         "lab_comparison": lab_json,
         "lab_outside_replay": open_cmp.outside_span,
         "final": final_state,
@@ -939,7 +1038,12 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
         plant.method,
         plant.tick_ms,
         if corrected {
-            ", corrected by level and lab"
+            match (plant.analysers.is_empty(), req.lab.is_some()) {
+                (true, true) => ", corrected by level and lab",
+                (true, false) => ", corrected by level",
+                (false, true) => ", corrected by level, analysers and lab",
+                (false, false) => ", corrected by level and analysers",
+            }
         } else {
             ", open loop"
         }
@@ -985,6 +1089,12 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
             c.tally.not_pending,
             k.lab_expired
         ));
+        if !plant.analysers.is_empty() {
+            text.push_str(&format!(
+                "  analysers: {} readings fused, {} rejected by the gate, {} skipped (vessel near empty)\n",
+                c.analyser_tally.fused, c.analyser_tally.rejected, c.analyser_tally.skipped
+            ));
+        }
         let cs = c.state();
         for (n, b) in c.bias_names.iter().zip(cs.bias.iter()) {
             text.push_str(&format!(
@@ -1024,6 +1134,30 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
                 iso(*a),
                 b.map(iso).unwrap_or_else(|| "the end".to_string())
             ));
+        }
+    }
+    if !plant.analysers.is_empty() {
+        text.push_str(&format!(
+            "Analysers: one reading per cycle used; {analyser_repeats} repeated values within a cycle not used\n"
+        ));
+        text.push_str(
+            "Analyser comparison at new analyses (estimate − analyser, mol/m³; corrected: before fusing the reading):\n",
+        );
+        text.push_str(&format!(
+            "  {:<16} {:<10} {:>6} {:>12} {:>12} {:>12}\n",
+            "species", "estimate", "n", "bias", "RMSE", "max |err|"
+        ));
+        for a in &plant.analysers {
+            let mut rows = vec![("open loop", &analyser_agree_open[a.species])];
+            if let Some(c) = &analyser_agree_corr {
+                rows.push(("corrected", &c[a.species]));
+            }
+            for (what, g) in rows {
+                text.push_str(&format!(
+                    "  {:<16} {:<10} {:>6} {:>12.4} {:>12.4} {:>12.4}\n",
+                    plant.species[a.species].name, what, g.n, g.bias, g.rmse, g.max_abs
+                ));
+            }
         }
     }
     if req.lab.is_some() {

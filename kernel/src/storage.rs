@@ -1,5 +1,6 @@
 //! Non-volatile byte storage for checkpoints: a trait, an in-memory
-//! implementation, and a driver for a serial FRAM on an SPI bus.
+//! implementation, a driver for a serial FRAM on an SPI bus, and one for a
+//! serial EEPROM on an I²C bus ([`I2cEeprom`], in `storage/eeprom.rs`).
 //!
 //! The trait is byte-addressed and deliberately small: read and write a run
 //! of bytes at an address. Errors are the implementation's own type, which
@@ -12,12 +13,16 @@
 //! select, then `WRITE` (`0x02`) or `READ` (`0x03`) followed by a 2- or
 //! 3-byte big-endian address and the data. FRAM writes complete at bus
 //! speed, have no page boundaries and need no busy polling, so a write is
-//! one transaction however long; an EEPROM, which needs page splitting and
-//! write-cycle polling, is not supported by this driver.
+//! one transaction however long. An SPI EEPROM, which needs page splitting
+//! and write-cycle polling, is not supported by this driver; for EEPROMs
+//! see [`I2cEeprom`].
 
 use embedded_hal::spi::{Operation, SpiDevice};
 
 use crate::Error;
+
+mod eeprom;
+pub use eeprom::{EepromAddressing, EepromError, I2cEeprom, MAX_PAGE, POLL_INTERVAL_US};
 
 /// What kind of failure a storage error is.
 #[non_exhaustive]

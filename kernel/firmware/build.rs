@@ -138,7 +138,7 @@ fn plant() -> Plant {
 /// estimates at every checkpoint and the final counters.
 fn observer_host(p: &Plant) -> (Vec<[f32; 5]>, [u32; 9]) {
     let mut t = Tracked::<f32>::new().expect("observer");
-    let mut inst = Instruments::new(&p.level_knots, &p.lab_values);
+    let mut inst = Instruments::new(&p.level_knots, &p.lab_values).expect("instruments");
     let mut points = Vec::new();
     for n in 0..OBS_TICKS {
         let r = inst.readings(n);
@@ -154,7 +154,7 @@ fn observer_host(p: &Plant) -> (Vec<[f32; 5]>, [u32; 9]) {
 /// readings: its NaOH at every checkpoint.
 fn open_loop(p: &Plant) -> Vec<f32> {
     let mut v = reference::vessel::<f32>().expect("reference vessel");
-    let mut inst = Instruments::new(&p.level_knots, &p.lab_values);
+    let mut inst = Instruments::new(&p.level_knots, &p.lab_values).expect("instruments");
     let mut points = Vec::new();
     for n in 0..OBS_TICKS {
         let r = inst.readings(n);

@@ -322,6 +322,9 @@ pub struct Model<S, const N: usize, const R: usize, const O: usize> {
     pub(crate) has_computed_outlets: bool,
 }
 
+// Out of line: configuration only, called for both directions (two inlined
+// copies cost about 0.5 KB of a gateway image).
+#[inline(never)]
 fn compile_rate<S: Scalar, const N: usize>(
     k: &Kinetics<S, N>,
     t_ref: S,

@@ -364,8 +364,11 @@ fn lerp<S: Scalar>(lo: S, hi: S, t: S) -> S {
 /// A duration in ms as seconds.
 #[inline]
 fn secs<S: Scalar>(ms: Millis) -> S {
-    // u64 → f64 rounds above 2^53 ms (285 000 years): harmless here.
-    S::of(ms as f64 * 1e-3)
+    // Through u32, not f64 (software double precision on the Cortex-M4F):
+    // an interval beyond 2^32 ms (49.7 days) saturates there, which only
+    // allows a larger change after a longer gap: harmless for a rate check.
+    let ms = u32::try_from(ms).unwrap_or(u32::MAX);
+    S::of_u32(ms) / S::of(1000.0)
 }
 
 impl<S: Scalar> Signal<S> {

@@ -221,7 +221,7 @@ pub fn reference_tick() -> TickFlops {
 pub fn observer_tick(level_knots: &[f32], lab_values: &[f32]) -> TickFlops {
     use super::observed::{observe, Instruments, Tracked, OBS_TICKS};
     let mut t = Tracked::<Counted>::new().expect("observer");
-    let mut inst = Instruments::new(level_knots, lab_values);
+    let mut inst = Instruments::new(level_knots, lab_values).expect("instruments");
     let mut f = TickFlops::new();
     for n in 0..OBS_TICKS {
         let r = inst.readings(n).cast::<Counted>();

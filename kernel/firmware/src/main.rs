@@ -23,7 +23,10 @@ use cortex_m_semihosting::debug;
 use holdup_kernel::reference::{self, ReferenceVessel};
 
 use meter::Meter;
-use observed::{Instruments, RefObserver, Tracked, CAUSTIC_BIAS, OBS_EVERY, OBS_POINTS, OBS_TICKS};
+use observed::{
+    Instruments, RefObserver, Tracked, CAUSTIC_BIAS, LEVEL_FAULT_S, OBS_EVERY, OBS_POINTS,
+    OBS_TICKS,
+};
 use report::Report;
 use scenarios::*;
 use tick::{rel_error, ulps, Stats};
@@ -431,7 +434,10 @@ fn observed_run(out: &mut Report, meter: &platform::Meter, delay: &mut platform:
         out.line("observer: configuration rejected");
         return false;
     };
-    let mut inst = Instruments::new(&expected::PLANT_LEVEL, &expected::LAB_VALUES);
+    let Ok(mut inst) = Instruments::new(&expected::PLANT_LEVEL, &expected::LAB_VALUES) else {
+        out.line("observer: loop conditioning rejected");
+        return false;
+    };
     let mut worst_ulps = 0u32;
     let mut points = 0u32;
     // |NaOH − plant| of the observer at every checkpoint.
@@ -499,6 +505,27 @@ fn observed_run(out: &mut Report, meter: &platform::Meter, delay: &mut platform:
         "  covariance guards, transition fallbacks",
         counts[6] + counts[7],
         "",
+    );
+
+    // (1b) The input path: the level loop's injected failure (3.4 mA, below
+    // NAMUR NE43's 3.6 mA limit) is caught by the signal layer on every one
+    // of its ticks (held for a minute, then stale: never `Good`), and the
+    // level update is skipped exactly then.
+    let not_good = inst.level_not_good;
+    let level_updates = counts[0] + counts[1];
+    let ok_loops = all && not_good == LEVEL_FAULT_S && level_updates == OBS_TICKS - LEVEL_FAULT_S;
+    out.check_value(
+        "level loop fault (3.4 mA, 180 s) caught",
+        1,
+        "ticks not Good",
+        not_good as f32,
+        LEVEL_FAULT_S as f32,
+        if level_updates == OBS_TICKS - LEVEL_FAULT_S {
+            "ticks exactly; updates skipped"
+        } else {
+            "ticks exactly; updates NOT skipped"
+        },
+        ok_loops,
     );
 
     // (2) Against the plant: the NaOH estimate within a tolerance, and closer
@@ -590,7 +617,7 @@ fn observed_run(out: &mut Report, meter: &platform::Meter, delay: &mut platform:
             },
         );
     }
-    ok_host && ok_plant && ok_open && ok_bias && met
+    ok_host && ok_loops && ok_plant && ok_open && ok_bias && met
 }
 
 fn abs(x: f32) -> f32 {
@@ -598,6 +625,9 @@ fn abs(x: f32) -> f32 {
 }
 
 /// The larger of `a` and `b`; a NaN in `b` gives infinity (fails any gate).
+// Out of line: called at every checkpoint of every scenario; inlined
+// copies cost flash, not time that counts.
+#[inline(never)]
 fn nan_max(a: f32, b: f32) -> f32 {
     if b.is_nan() {
         f32::INFINITY

@@ -18,9 +18,16 @@
 //!   plus noise of σ = [`LEVEL_SIGMA`]. A NaOH sample is drawn every
 //!   [`LAB_EVERY_S`] s from [`LAB_FIRST_S`]; its result (plant value plus
 //!   noise of σ = [`LAB_SIGMA`]) comes [`LAB_DELAY_S`] s later.
-//! * **Each tick**: `Observer::tick` with the meter readings, then
-//!   `update_level`, then the lab event of that second if any
-//!   (`lab_drawn` / `lab_result`).
+//! * **The input path** is a gateway's: each analog value travels as a
+//!   4–20 mA loop current ([`LOOPS`]) and comes back through the kernel's
+//!   signal conditioning (`holdup_kernel::signal`: NAMUR NE43 limits,
+//!   range, hold of the last good value). The level loop fails for
+//!   [`LEVEL_FAULT_S`] s from [`LEVEL_FAULT_AT_S`] (3.4 mA: a broken wire
+//!   after NE43); those readings are not `Good`, and the level update is
+//!   skipped while they last.
+//! * **Each tick**: `Observer::tick` with the conditioned meter readings,
+//!   then `update_level` if the level reading is `Good`, then the lab event
+//!   of that second if any (`lab_drawn` / `lab_result`).
 //!
 //! The noise is a 32-bit xorshift generator whose output is turned into
 //! `f32` by exact operations only (a 24-bit integer times 2⁻²⁴, sums and
@@ -28,7 +35,8 @@
 //! see bit-identical readings.
 
 use holdup_kernel::{
-    reference, BiasTarget, Error, Inputs, Observer, ObserverSpec, Scalar, StepReport,
+    reference, BiasTarget, Error, Inputs, Observer, ObserverSpec, Quality, Scalar, Signal,
+    SignalKind, SignalSpec, StepReport,
 };
 
 /// The observer type of the scenario: 3 species, 2 reactions, 1 outlet,
@@ -70,6 +78,24 @@ pub const LAB_DRAWS: usize = 4;
 pub const LEVEL_KNOT_S: u32 = 600;
 /// Number of level knots (both ends of the shift included).
 pub const LEVEL_KNOTS: usize = (OBS_TICKS / LEVEL_KNOT_S) as usize + 1;
+
+/// The 4–20 mA spans (engineering value at 4 and at 20 mA) of the caustic
+/// meter, the ester meter, the outlet meter (m³/s) and the level
+/// transmitter (m, the vessel's full height).
+pub const LOOPS: [(f32, f32); 4] = [
+    (0.0, 1.2 / 3600.0),
+    (0.0, 1.2 / 3600.0),
+    (0.0, 2.4 / 3600.0),
+    (0.0, 2.25),
+];
+/// The level loop fails at this second of the shift (5 h) ...
+pub const LEVEL_FAULT_AT_S: u32 = 5 * 3600;
+/// ... for this many seconds ...
+pub const LEVEL_FAULT_S: u32 = 180;
+/// ... reading this current, mA (below NE43's 3.6 mA failure limit).
+pub const LEVEL_FAULT_MA: f32 = 3.4;
+/// How long a loop's last good value stands in for a failed one, ms.
+pub const HOLD_MS: u64 = 60_000;
 
 /// Seed of the meters' noise (flows and level, in that order every tick).
 pub const METER_SEED: u32 = 0x2545_F491;
@@ -149,6 +175,8 @@ pub struct Readings<S> {
     pub u: RefInputs<S>,
     /// Level at the end of the tick, m.
     pub level: S,
+    /// The level reading is `Good` (fused only then).
+    pub level_good: bool,
     /// Lab event at the end of the tick.
     pub lab: Lab<S>,
 }
@@ -171,6 +199,7 @@ impl Readings<f32> {
                 temperature: c(u.temperature),
             },
             level: c(self.level),
+            level_good: self.level_good,
             lab: match self.lab {
                 Lab::None => Lab::None,
                 Lab::Drawn(id) => Lab::Drawn(id),
@@ -194,17 +223,52 @@ pub struct Instruments<'a> {
     noise: Noise,
     level_knots: &'a [f32],
     lab_values: &'a [f32],
+    /// The gateway's conditioning of the four loops ([`LOOPS`] order).
+    loops: [Signal<f32>; 4],
+    /// Ticks whose level reading was not `Good`.
+    pub level_not_good: u32,
+}
+
+/// The conditioning of one loop with span `(lo, hi)`: NE43 limits, the
+/// span as valid range (flows a little below zero allowed and clamped),
+/// the last good value held for [`HOLD_MS`].
+fn conditioned(lo: f32, hi: f32, flow: bool) -> Result<Signal<f32>, Error> {
+    Signal::new(SignalSpec {
+        kind: SignalKind::Current4to20 { lo, hi },
+        min: if flow { lo - 0.01 * (hi - lo) } else { lo },
+        max: hi,
+        max_rate_per_s: None,
+        stuck: None,
+        hold_max_ms: HOLD_MS,
+        clamp_negative: flow,
+    })
+}
+
+/// The loop current (mA) of engineering value `v` on span `(lo, hi)`.
+fn current(v: f32, (lo, hi): (f32, f32)) -> f32 {
+    4.0 + 16.0 * (v - lo) / (hi - lo)
 }
 
 impl<'a> Instruments<'a> {
     /// The instruments of a plant whose level (m) every [`LEVEL_KNOT_S`] s
     /// is `level_knots` and whose lab results are `lab_values` (in draw order).
-    pub fn new(level_knots: &'a [f32], lab_values: &'a [f32]) -> Self {
-        Self {
+    ///
+    /// Errors: only if the loop constants above were edited into an invalid
+    /// signal specification.
+    pub fn new(level_knots: &'a [f32], lab_values: &'a [f32]) -> Result<Self, Error> {
+        let [(a0, b0), (a1, b1), (a2, b2), (a3, b3)] = LOOPS;
+        Ok(Self {
             noise: Noise::new(METER_SEED),
             level_knots,
             lab_values,
-        }
+            loops: [
+                conditioned(a0, b0, true)?,
+                conditioned(a1, b1, true)?,
+                conditioned(a2, b2, true)?,
+                conditioned(a3, b3, false)?,
+            ],
+            level_not_good: 0,
+        })
     }
 
     /// The readings of tick `n` (from 0), which runs from `n` s to `n + 1` s.
@@ -220,6 +284,33 @@ impl<'a> Instruments<'a> {
         let b = self.level_knots.get(k + 1).copied().unwrap_or(a);
         let frac = (s % LEVEL_KNOT_S) as f32 / LEVEL_KNOT_S as f32;
         let level = a + (b - a) * frac + LEVEL_SIGMA * self.noise.normal();
+        // Through the loops and the gateway's conditioning.
+        let now = u64::from(s) * u64::from(reference::TICK_MS);
+        let fault = (LEVEL_FAULT_AT_S..LEVEL_FAULT_AT_S + LEVEL_FAULT_S).contains(&s);
+        let values = [u.inlet_flows[0], u.inlet_flows[1], u.outlet_flows[0], level];
+        let mut out = [(0.0f32, Quality::Bad); 4];
+        // One loop over the four (one copy of the conditioning in the image).
+        for (k, ((o, sig), (v, span))) in out
+            .iter_mut()
+            .zip(self.loops.iter_mut())
+            .zip(values.into_iter().zip(LOOPS))
+            .enumerate()
+        {
+            let ma = if k == 3 && fault {
+                LEVEL_FAULT_MA
+            } else {
+                current(v, span)
+            };
+            let r = sig.update(ma, now);
+            *o = (r.value, r.quality);
+        }
+        let [(q0, _), (q1, _), (q2, _), (level, level_q)] = out;
+        u.inlet_flows = [q0, q1];
+        u.outlet_flows = [q2];
+        let level_good = level_q == Quality::Good;
+        if !level_good {
+            self.level_not_good += 1;
+        }
         let lab = if let Some(j) = lab_draw_at(s) {
             Lab::Drawn(j as u32 + 1)
         } else if let Some(j) = s.checked_sub(LAB_DELAY_S).and_then(lab_draw_at) {
@@ -230,7 +321,12 @@ impl<'a> Instruments<'a> {
         } else {
             Lab::None
         };
-        Readings { u, level, lab }
+        Readings {
+            u,
+            level,
+            level_good,
+            lab,
+        }
     }
 }
 
@@ -259,7 +355,9 @@ impl<S: Scalar> Tracked<S> {
 #[inline(always)]
 pub fn observe<S: Scalar>(t: &mut Tracked<S>, r: &Readings<S>) -> StepReport<S> {
     let report = t.obs.tick(&r.u);
-    let _ = t.obs.update_level(r.level);
+    if r.level_good {
+        let _ = t.obs.update_level(r.level);
+    }
     let lab_ok = match r.lab {
         Lab::None => true,
         Lab::Drawn(id) => t.obs.lab_drawn(id, LAB_SPECIES, t.lab_sigma).is_ok(),

@@ -30,11 +30,18 @@ impl Line {
         }
     }
 
+    /// Append `b`; a line that does not fit ends in `~` (truncated, and
+    /// says so) and keeps room for its newline.
     #[inline(never)]
     fn byte(&mut self, b: u8) -> &mut Self {
-        if let Some(slot) = self.buf.get_mut(self.len) {
-            *slot = b;
-            self.len += 1;
+        let room = self.buf.len() - 1;
+        if self.len < room || (b == b'\n' && self.len == room) {
+            if let Some(slot) = self.buf.get_mut(self.len) {
+                *slot = b;
+                self.len += 1;
+            }
+        } else if let Some(last) = self.buf.get_mut(room - 1) {
+            *last = b'~';
         }
         self
     }

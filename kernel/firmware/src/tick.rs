@@ -196,6 +196,9 @@ where
 }
 
 /// Relative error of `got` against `want` (absolute where `want` is 0).
+// Out of line: called at every checkpoint of every scenario; inlined
+// copies cost flash, not time that counts.
+#[inline(never)]
 pub fn rel_error(got: f32, want: f32) -> f32 {
     let d = Scalar::abs(got - want);
     let w = Scalar::abs(want);
@@ -208,6 +211,9 @@ pub fn rel_error(got: f32, want: f32) -> f32 {
 
 /// Distance in units in the last place between two finite `f32`s of the
 /// same sign (saturating; `u32::MAX` otherwise).
+// Out of line: called at every checkpoint of every scenario; inlined
+// copies cost flash, not time that counts.
+#[inline(never)]
 pub fn ulps(a: f32, b: f32) -> u32 {
     if !a.is_finite() || !b.is_finite() || (a < 0.0) != (b < 0.0) {
         return u32::MAX;

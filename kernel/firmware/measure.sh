@@ -71,6 +71,7 @@ obusy=$(after 'observer tick (level + lab)' 'mean of those ticks')
 ostate=$(field 'size_of Observer<f32')
 state=$(field 'size_of ReferenceVessel<f32>')
 fwstack=$(field 'stack high-water, whole firmware')
+sigcost=$(grep -F 'cost signal update' <<<"$first" | sed -E 's/.*mean: ([0-9.e+-]+).*/\1/')
 
 verdict() { if awk -v a="$1" -v b="$2" 'BEGIN { exit !(a < b) }'; then echo met; else echo MISSED; fi; }
 
@@ -83,6 +84,7 @@ Gateway firmware on QEMU mps2-an386 (Cortex-M4F, f32), $(rustc --version | cut -
 | tick with observer (level update every tick, lab sample every 2 h, result 45 min later), instructions min / mean / max over 28,800 ticks | $omin / $(num "$omean" 0) / $omax | < 6,000: $(verdict "$omean" 6000) |
 | tick with observer, mean over the ticks with a lab sample pending | $(num "$obusy" 0) | — |
 | exact tick (analytic scenario, 3 species, 1 reaction), instructions min / mean / max | $emin / $(num "$emean" 0) / $emax | — |
+| input path: one \`Signal::update\` (4–20 mA loop: NE43, range, hold), good sample, instructions mean over 1,000 | $(num "$sigcost" 0) | — |
 | flops per observer tick (+ − × ÷) + libm calls (of which sqrt) | $(num "$oflops" 0) + $(num "$ocalls" 1) ($(num "$osqrt" 1)) | — |
 | instructions per (flop + libm call), observer tick | $(num "$oratio" 2) | — |
 | flops per reference tick (+ − × ÷) + libm calls | $(num "$rflops" 1) + $(num "$rcalls" 0) | — |

@@ -183,6 +183,7 @@ fn run(out: &mut Report, cp: cortex_m::Peripherals) -> bool {
     pass &= analytic(out, &meter, &mut delay);
     pass &= reference_run(out, &meter, &mut delay);
     pass &= observed_run(out, &meter, &mut delay);
+    signal_cost(out, &meter);
     #[cfg(feature = "checkpoint")]
     {
         pass &= checkpoint_run(out);
@@ -643,6 +644,35 @@ fn injected(x: f32, n: u32, at: u32) -> f32 {
     } else {
         x
     }
+}
+
+/// What the input path costs: one `Signal::update` of the level loop's
+/// conditioning (4–20 mA scaling, NE43 classification, range check, hold
+/// bookkeeping) on a good sample, mean over 1,000 samples of a sweep
+/// within the span. Reported, not gated; the gateway runs one per loop per
+/// tick (four in the observed scenario, outside the measured tick).
+fn signal_cost(out: &mut Report, meter: &platform::Meter) {
+    let (lo, hi) = observed::LOOPS[3];
+    let Ok(mut sig) = observed::conditioned(lo, hi, false) else {
+        out.line("signal cost: loop conditioning rejected");
+        return;
+    };
+    let overhead = meter.calibrate();
+    let mut total = 0u32;
+    let n = 1000u32;
+    for k in 0..n {
+        let ma = 8.0 + (k % 100) as f32 * 0.01;
+        let a = meter.now();
+        let r = sig.update(ma, u64::from(k + 1) * 1000);
+        let b = meter.now();
+        core::hint::black_box(r);
+        total = total.saturating_add(meter.units(a, b).saturating_sub(overhead));
+    }
+    out.value(
+        "cost signal update (4-20 mA loop, good sample), mean",
+        total as f32 / n as f32,
+        <platform::Meter as Meter>::UNIT,
+    );
 }
 
 fn report_stats(out: &mut Report, name: &str, st: &Stats, flops: &Flops) {

@@ -232,7 +232,7 @@ pub struct Instruments<'a> {
 /// The conditioning of one loop with span `(lo, hi)`: NE43 limits, the
 /// span as valid range (flows a little below zero allowed and clamped),
 /// the last good value held for [`HOLD_MS`].
-fn conditioned(lo: f32, hi: f32, flow: bool) -> Result<Signal<f32>, Error> {
+pub fn conditioned(lo: f32, hi: f32, flow: bool) -> Result<Signal<f32>, Error> {
     Signal::new(SignalSpec {
         kind: SignalKind::Current4to20 { lo, hi },
         min: if flow { lo - 0.01 * (hi - lo) } else { lo },

@@ -8,7 +8,9 @@ use holdup_kernel::storage::MemStorage;
 use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {
-    let Some((&flags, body)) = data.split_first() else { return };
+    let Some((&flags, body)) = data.split_first() else {
+        return;
+    };
     let mut image = vec![0u8; MEM];
     let n = body.len().min(MEM);
     image[..n].copy_from_slice(&body[..n]);

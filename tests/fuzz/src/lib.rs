@@ -1,6 +1,6 @@
 //! Shared helpers for the holdup fuzz targets.
 
-use holdup_kernel::checkpoint::{Checkpoint, Checkpoints, HEADER_LEN, MAGIC, FORMAT_VERSION};
+use holdup_kernel::checkpoint::{Checkpoint, Checkpoints, FORMAT_VERSION, HEADER_LEN, MAGIC};
 use holdup_kernel::crc::crc32;
 use holdup_kernel::{reference, BiasTarget, Observer, ObserverSpec};
 use holdup_sim::log::LogReader;
@@ -67,7 +67,11 @@ pub fn tag_options() -> Vec<TagOptions> {
         .enumerate()
         .map(|(i, t)| TagOptions {
             tag: t.to_string(),
-            interpolation: if i == 4 { Interpolation::Hold } else { Interpolation::Linear },
+            interpolation: if i == 4 {
+                Interpolation::Hold
+            } else {
+                Interpolation::Linear
+            },
             max_age_ms: 120_000,
             non_negative: i < 2,
         })
@@ -76,9 +80,17 @@ pub fn tag_options() -> Vec<TagOptions> {
 
 /// Feed `data` to a log reader of the given layout and sample it forward.
 pub fn run_log(data: &[u8], format: LogFormat) {
+    // The time option from the input's length, so that every seed is read
+    // unchanged under each of the three (detection, forced ISO 8601, forced
+    // epoch seconds) as the fuzzer grows and shrinks it.
+    let time = match data.len() % 3 {
+        0 => TimeFormat::Auto,
+        1 => TimeFormat::Iso8601,
+        _ => TimeFormat::Epoch,
+    };
     let opts = LogOptions {
         format,
-        time: TimeFormat::Auto,
+        time,
         time_column: None,
         max_age_ms: 120_000,
     };

@@ -30,7 +30,9 @@ fn main() {
     let mut mem = vec![0u8; MEM];
     for _ in 0..3 {
         v.step(&u);
-        LAYOUT.save(&v, &mut MemStorage::new(&mut mem), &mut scratch).unwrap();
+        LAYOUT
+            .save(&v, &mut MemStorage::new(&mut mem), &mut scratch)
+            .unwrap();
     }
     for flag in [0u8, 1] {
         let mut seed = vec![flag];
@@ -41,7 +43,9 @@ fn main() {
     let mut mem = vec![0u8; MEM];
     for _ in 0..3 {
         o.tick(&u);
-        LAYOUT.save(&o, &mut MemStorage::new(&mut mem), &mut scratch).unwrap();
+        LAYOUT
+            .save(&o, &mut MemStorage::new(&mut mem), &mut scratch)
+            .unwrap();
     }
     for flag in [0u8, 1] {
         let mut seed = vec![flag];
@@ -63,7 +67,11 @@ fn ref_spec() -> VesselSpec<f32, 3, 2, 1> {
     let mut reactions = heapless::Vec::new();
     let r = |k: f32, ea: f32, st: [f32; 3], ord: [f32; 3]| ReactionSpec {
         stoichiometry: st,
-        forward: Kinetics { rate_constant: k, activation_energy: ea, orders: ord },
+        forward: Kinetics {
+            rate_constant: k,
+            activation_energy: ea,
+            orders: ord,
+        },
         reverse: None,
         reference_temperature: 298.15,
     };

@@ -527,40 +527,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
         if !self.has_computed_outlets {
             return S::ZERO;
         }
-        let z = self.geometry.level_at(v);
-        let two_g = S::of(2.0 * STANDARD_GRAVITY);
-        let mut q = S::ZERO;
-        for o in self.outlets.iter() {
-            match *o {
-                Outlet::Measured => {}
-                Outlet::Orifice {
-                    discharge_coefficient,
-                    area,
-                    elevation,
-                } => {
-                    let head = z - elevation;
-                    if head > S::ZERO {
-                        q += discharge_coefficient * area * (two_g * head).sqrt();
-                    }
-                }
-                Outlet::Weir {
-                    discharge_coefficient,
-                    width,
-                    crest_level,
-                } => {
-                    let head = z - crest_level;
-                    if head > S::ZERO {
-                        q += S::of(2.0 / 3.0)
-                            * discharge_coefficient
-                            * width
-                            * two_g.sqrt()
-                            * head
-                            * head.sqrt();
-                    }
-                }
-            }
-        }
-        q
+        self.computed_outflow_at_level(self.geometry.level_at(v)).0
     }
 
     /// Rate constants of every reaction direction at temperature `t` (K):
@@ -601,6 +568,16 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
         }
         let z = self.geometry.level_at(v);
         let area = self.geometry.area_at(z);
+        let (q, dqdz) = self.computed_outflow_at_level(z);
+        let slope = if area > S::ZERO { dqdz / area } else { S::ZERO };
+        (q, slope)
+    }
+
+    /// The outlet laws at level `z` (m): total computed flow (m³/s) and its
+    /// slope with the level (m²/s). Orifice `q = C_d·A·√(2 g h)`, weir
+    /// `q = (2/3)·C_d·b·√(2g)·h^{3/2}`, `h` the head above the orifice
+    /// centre or the crest (common practice).
+    fn computed_outflow_at_level(&self, z: S) -> (S, S) {
         let two_g = S::of(2.0 * STANDARD_GRAVITY);
         let (mut q, mut dqdz) = (S::ZERO, S::ZERO);
         for o in self.outlets.iter() {
@@ -637,8 +614,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
                 }
             }
         }
-        let slope = if area > S::ZERO { dqdz / area } else { S::ZERO };
-        (q, slope)
+        (q, dqdz)
     }
 
     /// Jacobian of the reaction source `g_i = V·Σ_j ν_ij·r_j(n/V)` (mol/s)

@@ -345,7 +345,9 @@ mod tests {
     /// A simulated 24-series part: two address bytes, a page counter that
     /// wraps within its page (as the real parts do, so an unsplit write
     /// would corrupt the page's start), and a write cycle during which the
-    /// device does not acknowledge for `busy_polls` polls.
+    /// device does not acknowledge for `busy_polls` polls. The behaviour is
+    /// that of the family's datasheets (page-write roll-over, acknowledge
+    /// polling), written from memory.
     struct SimulatedPart {
         mem: Vec<u8>,
         page: usize,
@@ -399,20 +401,18 @@ mod tests {
         }
     }
 
-    /// Writes of every length from 1 to 200 bytes at addresses around page
-    /// boundaries read back exactly through the page-wrapping device, with
-    /// one bus write per page touched.
-    #[test]
-    fn round_trips_through_a_page_wrapping_part() {
+    /// The driver on a simulated 4 KiB part with 32-byte pages, busy for
+    /// `busy_polls` polls after each page write.
+    fn simulated(busy_polls: u32) -> I2cEeprom<SimulatedPart, NoopDelay> {
         let part = SimulatedPart {
             mem: vec![0xFF; 4096],
             page: 32,
-            busy_polls: 3,
+            busy_polls,
             busy: 0,
             page_writes: 0,
             pointer: 0,
         };
-        let mut e = I2cEeprom::new(
+        I2cEeprom::new(
             part,
             NoopDelay,
             0x50,
@@ -421,7 +421,15 @@ mod tests {
             EepromAddressing::TwoBytes,
             5,
         )
-        .unwrap();
+        .unwrap()
+    }
+
+    /// Writes of every length from 1 to 200 bytes at addresses around page
+    /// boundaries read back exactly through the page-wrapping device, with
+    /// one bus write per page touched.
+    #[test]
+    fn round_trips_through_a_page_wrapping_part() {
+        let mut e = simulated(3);
         let mut shadow = vec![0xFFu8; 4096];
         let mut expected_pages = 0u32;
         let mut seed = 0x2545_f491u32;
@@ -454,24 +462,7 @@ mod tests {
     fn checkpoint_round_trip_through_the_driver() {
         use crate::checkpoint::Checkpoints;
         use crate::reference;
-        let part = SimulatedPart {
-            mem: vec![0xFF; 4096],
-            page: 32,
-            busy_polls: 2,
-            busy: 0,
-            page_writes: 0,
-            pointer: 0,
-        };
-        let mut e = I2cEeprom::new(
-            part,
-            NoopDelay,
-            0x50,
-            4096,
-            32,
-            EepromAddressing::TwoBytes,
-            5,
-        )
-        .unwrap();
+        let mut e = simulated(2);
         let mut v = reference::vessel::<f32>().unwrap();
         for _ in 0..100 {
             let u = reference::inputs_at::<f32>(v.time_ms());

@@ -40,7 +40,7 @@
 //! | [`signal`] | raw 4–20 mA / counts / engineering inputs → value + quality + flags (NE43, range, rate, stuck, hold) |
 //! | [`geometry`] | level ↔ volume ↔ cross-section of the vessel shapes |
 //! | [`model`] | raw [`VesselSpec`] → validated [`Model`]; outlets, kinetics |
-//! | [`integrate`] | exact step, MPRK22, reference RK4 and Euler |
+//! | [`integrate`] | exact step, matrix exponential of first-order networks, MPRK22 (whole and substepped), reference RK4 and Euler |
 //! | [`vessel`] | the state and its [`Vessel::step`] |
 //! | [`observer`] | extended Kalman filter: level, analyser and delayed lab corrections, meter biases |
 //! | [`diagnostics`] | balance-closure CUSUM, NIS model-mismatch test, NAMUR NE107 status and output qualities |
@@ -158,7 +158,7 @@ pub mod vessel;
 
 pub use error::Error;
 pub use geometry::{Bottom, Geometry, Shape};
-pub use model::{Inputs, Kinetics, Method, Model, Outlet, ReactionSpec, VesselSpec};
+pub use model::{Inputs, Kinetics, Method, Model, Network, Outlet, ReactionSpec, VesselSpec};
 pub use observer::{BiasTarget, Observer, ObserverSpec, ObserverState, Update};
 pub use scalar::{Compensated, Scalar};
 pub use signal::{Quality, Reading, Signal, SignalFlags, SignalKind, SignalSpec, StuckSpec};

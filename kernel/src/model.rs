@@ -104,19 +104,22 @@ pub struct ReactionSpec<S, const N: usize> {
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub enum Method {
-    /// The exact step where the network allows it (no reactions, or
-    /// first-order consumption only), MPRK22 otherwise. The default.
+    /// The exact step where the network allows it (a first-order network,
+    /// see [`Network`]), MPRK22 otherwise. The default.
     #[default]
     Auto,
-    /// The exact step; the configuration is refused if the network is not
-    /// linear and uncoupled. A tick with changing volume and a reaction falls
-    /// back to MPRK22 and says so.
+    /// The exact step; the configuration is refused if the network is not a
+    /// first-order network. A tick with changing holdup and a reaction is
+    /// second order (the matrix exponential with the tick-mean dilution)
+    /// and says so ([`crate::StatusFlags::METHOD_FALLBACK`]).
     Exact,
     /// The modified Patankar–Runge–Kutta scheme (MPRK22): positive and
-    /// conservative at any tick, second order. A mild tick is stepped whole
-    /// (feed, dilution and reactions together); a stiff one, or one longer
-    /// than a fraction of the residence time, steps the reactions around an
-    /// exact transport step (Strang splitting). See [`crate::integrate`].
+    /// conservative at any tick, second order, a steady state a fixed
+    /// point. A mild tick is stepped whole (feed, dilution and reactions
+    /// together); a stiff one, or one longer than a fraction of the
+    /// residence time, by substeps of an exponential MPRK22 under error
+    /// control, at most [`crate::integrate::stiff::MAX_SUBSTEPS`]. See
+    /// [`crate::integrate`].
     Mprk22,
     /// Reference only: classical RK4. Loses positivity at large `k·h`;
     /// negative amounts are clamped and flagged. Needs the kernel feature
@@ -126,6 +129,26 @@ pub enum Method {
     /// negative at `λh > 1`; negative amounts are clamped and flagged.
     /// Needs the kernel feature `reference-methods` (on by default).
     ReferenceEuler,
+}
+
+/// The class of a reaction network, found at configuration: it decides
+/// which integrator [`Method::Auto`] uses.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize))]
+pub enum Network {
+    /// No reaction, or only irreversible first-order consumption
+    /// (`ν = −1`, order 1) with no products: each species decays on its
+    /// own; closed form per species.
+    Uncoupled,
+    /// Every reaction direction runs at `k·c_l`, `l` its only consumed
+    /// species (order 1 in it, 0 in all others): A → B, A → B → C, parallel
+    /// A → B and A → C, A ⇌ B, A → B + C. The balances are a linear system;
+    /// stepped by its matrix exponential.
+    FirstOrder,
+    /// Anything else (a second-order or fractional rate, two reactants, a
+    /// zero-order rate): MPRK22.
+    General,
 }
 
 /// Raw description of one vessel with `N` species, up to `R` reactions,
@@ -252,6 +275,35 @@ impl<S: Scalar, const N: usize> Rate<S, N> {
         }
     }
 
+    /// The largest rate constant at any temperature: `k_ref·e^{E_a/(R·T_ref)}`
+    /// (the limit `T → ∞`; infinite if that overflows).
+    pub(crate) fn max_constant(&self) -> S {
+        if self.ea_over_r == S::ZERO {
+            self.k_ref
+        } else {
+            self.k_ref * (self.ea_over_r * self.inv_t_ref).exp()
+        }
+    }
+
+    /// True when this direction runs at `k·c_l` with `l` its only consumed
+    /// species: `sign·ν_l < 0` for exactly one `l`, order 1 in `l` and 0 in
+    /// every other species (`sign` is +1 for a forward direction, −1 for a
+    /// reverse one).
+    pub(crate) fn first_order_in(&self, nu: &[S; N], sign: S) -> bool {
+        let mut consumed = 0usize;
+        for (&n, o) in nu.iter().zip(self.orders.iter()) {
+            if sign * n < S::ZERO {
+                consumed += 1;
+                if *o != Order::One {
+                    return false;
+                }
+            } else if *o != Order::Zero {
+                return false;
+            }
+        }
+        consumed == 1
+    }
+
     /// Rate in mol/(m³·s) for rate constant `k` at concentrations `c`.
     #[inline]
     pub(crate) fn rate(&self, k: S, c: &[S; N]) -> S {
@@ -317,8 +369,11 @@ pub struct Model<S, const N: usize, const R: usize, const O: usize> {
     /// `f64`, which is software arithmetic on the Cortex-M4F).
     pub(crate) tick_s: S,
     pub(crate) method: Method,
-    /// The network is linear and uncoupled (the exact step applies).
-    pub(crate) exact_class: bool,
+    /// The class of the reaction network.
+    pub(crate) network: Network,
+    /// Bound on the doublings of the matrix exponential of a first-order
+    /// network (see [`Model::max_squarings`]).
+    pub(crate) max_squarings: u16,
     pub(crate) has_computed_outlets: bool,
 }
 
@@ -400,8 +455,11 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
             }
         }
         let mut reactions = Vec::new();
-        let mut exact_class = true;
-        let mut produced = [false; N];
+        let mut uncoupled = true;
+        let mut first_order = true;
+        // Bound on the one-norm of the network matrix at any temperature
+        // (rate constants at T → ∞: k_ref·e^{E_a/(R·T_ref)}).
+        let mut k_norm = S::ZERO;
         for (j, r) in spec.reactions.iter().enumerate() {
             let idx = j as u8;
             if !Scalar::is_finite(r.reference_temperature) || r.reference_temperature <= S::ZERO {
@@ -430,7 +488,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
                 }
                 None => None,
             };
-            // Exact class: irreversible, one reactant with ν = −1 and order 1,
+            // Uncoupled: irreversible, one reactant with ν = −1 and order 1,
             // no other order, no products.
             let single = reactants == 1
                 && reverse.is_none()
@@ -445,13 +503,19 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
                             *o == Order::Zero
                         }
                     });
-            if !single {
-                exact_class = false;
+            uncoupled &= single;
+            first_order &= forward.first_order_in(&r.stoichiometry, S::ONE);
+            if let Some(rev) = &reverse {
+                first_order &= rev.first_order_in(&r.stoichiometry, -S::ONE);
             }
-            for (p, &nu) in produced.iter_mut().zip(r.stoichiometry.iter()) {
-                if nu > S::ZERO {
-                    *p = true;
-                }
+            let weight: S = r
+                .stoichiometry
+                .iter()
+                .map(|nu| nu.abs())
+                .fold(S::ZERO, |a, b| a + b);
+            k_norm += weight * forward.max_constant();
+            if let Some(rev) = &reverse {
+                k_norm += weight * rev.max_constant();
             }
             // Capacity of `reactions` equals that of `spec.reactions`.
             let _ = reactions.push(Reaction {
@@ -460,7 +524,14 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
                 reverse,
             });
         }
-        if spec.method == Method::Exact && !exact_class {
+        let network = if uncoupled {
+            Network::Uncoupled
+        } else if first_order {
+            Network::FirstOrder
+        } else {
+            Network::General
+        };
+        if spec.method == Method::Exact && network == Network::General {
             return Err(Error::ConfigExactNotApplicable);
         }
         if cfg!(not(feature = "reference-methods"))
@@ -477,7 +548,11 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
             tick_ms: spec.tick_ms,
             tick_s: crate::units::seconds(spec.tick_ms),
             method: spec.method,
-            exact_class,
+            network,
+            max_squarings: crate::integrate::linear::squarings_bound(
+                crate::units::seconds(spec.tick_ms),
+                k_norm,
+            ),
             has_computed_outlets,
         })
     }
@@ -512,9 +587,32 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
         self.method
     }
 
-    /// True when the network is linear and uncoupled, so the exact step applies.
+    /// True when the network is a first-order network ([`Network::Uncoupled`]
+    /// or [`Network::FirstOrder`]), so the exact step applies.
     pub fn is_exact_class(&self) -> bool {
-        self.exact_class
+        self.network != Network::General
+    }
+
+    /// The class of the reaction network.
+    pub fn network(&self) -> Network {
+        self.network
+    }
+
+    /// Worst-case doublings of the matrix exponential in one tick of a
+    /// first-order network, fixed here at configuration:
+    /// `⌈log₂((2h·‖K‖₁ + L)/θ)⌉` with `‖K‖₁` bounded by the rate constants
+    /// at infinite temperature, `L = 2·ln(1/ε) + 2` and `θ = 1/2` (see
+    /// [`crate::integrate::linear`]). Each doubling is two `N × N` matrix
+    /// products.
+    pub fn max_squarings(&self) -> u16 {
+        self.max_squarings
+    }
+
+    /// Worst-case substeps of one stiff tick of a general network:
+    /// [`crate::integrate::stiff::MAX_SUBSTEPS`], each two rate evaluations
+    /// and two Patankar solves.
+    pub fn max_substeps(&self) -> u16 {
+        crate::integrate::stiff::MAX_SUBSTEPS
     }
 
     /// Number of reactions.
@@ -665,8 +763,65 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
         }
     }
 
+    /// The matrix `M = K − d·I` of a first-order network (1/s) at rate
+    /// constants `k` and dilution `d` (1/s): `dn/dt = f + M·n`, with
+    /// `K[i][l] += ±ν_i·k` for each direction consuming `l` (see
+    /// [`crate::integrate::linear`]). Meaningful only for
+    /// [`Network::FirstOrder`] and [`Network::Uncoupled`].
+    pub(crate) fn network_matrix(&self, k: &[[S; 2]; R], d: S) -> [[S; N]; N] {
+        let mut m = [[S::ZERO; N]; N];
+        for (i, row) in m.iter_mut().enumerate() {
+            row[i] = -d;
+        }
+        for (r, kj) in self.reactions.iter().zip(k.iter()) {
+            for (dir, sign) in [(0usize, S::ONE), (1, -S::ONE)] {
+                let kd = kj[dir];
+                if dir == 1 && r.reverse.is_none() {
+                    continue;
+                }
+                // The consumed species of this direction.
+                let Some(l) = r.nu.iter().position(|&n| sign * n < S::ZERO) else {
+                    continue;
+                };
+                for (row, &nu) in m.iter_mut().zip(r.nu.iter()) {
+                    row[l] += sign * nu * kd;
+                }
+            }
+        }
+        m
+    }
+
+    /// The residual `M·n + f` of a first-order network (mol/s) for amounts
+    /// `n`, feed `f` (mol/s), rate constants `k` and dilution `d` (1/s),
+    /// formed reaction by reaction: each reaction's net extent
+    /// `k_f·n_A − k_r·n_B` is rounded once and given to every species by its
+    /// stoichiometry, so a fast reversible reaction near equilibrium does
+    /// not leave the rounding of its gross rates in the conserved totals.
+    pub(crate) fn network_residual(&self, k: &[[S; 2]; R], d: S, n: &[S; N], f: &[S; N]) -> [S; N] {
+        let mut r = [S::ZERO; N];
+        for i in 0..N {
+            r[i] = f[i] - d * n[i];
+        }
+        for (reaction, kj) in self.reactions.iter().zip(k.iter()) {
+            let consumed = |sign: S| reaction.nu.iter().position(|&x| sign * x < S::ZERO);
+            let mut net = S::ZERO;
+            if let Some(l) = consumed(S::ONE) {
+                net = kj[0] * n[l];
+            }
+            if reaction.reverse.is_some() {
+                if let Some(p) = consumed(-S::ONE) {
+                    net -= kj[1] * n[p];
+                }
+            }
+            for (ri, &nu) in r.iter_mut().zip(reaction.nu.iter()) {
+                *ri += nu * net;
+            }
+        }
+        r
+    }
+
     /// First-order consumption constant of each species (1/s) at rate
-    /// constants `k`; meaningful only in the exact class.
+    /// constants `k`; meaningful only for [`Network::Uncoupled`].
     pub(crate) fn first_order_constants(&self, k: &[[S; 2]; R]) -> [S; N] {
         let mut lam = [S::ZERO; N];
         for (r, kj) in self.reactions.iter().zip(k.iter()) {

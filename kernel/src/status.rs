@@ -85,16 +85,23 @@ impl StatusFlags {
     /// A component amount came out below zero by rounding (or, in a
     /// reference method, by the method itself) and was set to zero.
     pub const AMOUNT_CLAMPED: Self = Self(1 << 6);
-    /// The exact method was requested but this tick was not in its class
-    /// (changing volume with a reaction): MPRK22 was used instead.
+    /// The exact method was requested but this tick could not be exact
+    /// (the holdup changed while a reaction ran): the matrix exponential
+    /// with the tick-mean dilution, second order in the tick, was used.
     pub const METHOD_FALLBACK: Self = Self(1 << 7);
     /// The stage solve met a singular or non-finite system: the component
     /// amounts were held at their previous values for this tick.
     pub const NUMERIC_FAULT: Self = Self(1 << 8);
+    /// A stiff tick used its whole substep budget
+    /// ([`crate::integrate::stiff::MAX_SUBSTEPS`]); the last substep took
+    /// the rest of the tick without meeting the error tolerance. The
+    /// amounts are still positive and conservative; the tick is less
+    /// accurate than the others.
+    pub const SUBSTEP_BUDGET: Self = Self(1 << 9);
 
     /// Names of the set flags, in bit order (fixed strings, for reports).
     pub fn names(self) -> impl Iterator<Item = &'static str> {
-        const NAMES: [&str; 9] = [
+        const NAMES: [&str; 10] = [
             "empty",
             "near_empty",
             "overflow",
@@ -104,6 +111,7 @@ impl StatusFlags {
             "amount_clamped",
             "method_fallback",
             "numeric_fault",
+            "substep_budget",
         ];
         NAMES
             .into_iter()
@@ -122,8 +130,12 @@ pub enum MethodUsed {
     /// Closed-form step (linear, uncoupled).
     #[default]
     Exact,
-    /// Reactions by MPRK22 (modified Patankar–Runge–Kutta, second order)
-    /// around an exact transport step (Strang splitting).
+    /// Matrix exponential of a first-order network (exact at constant
+    /// holdup, second order while it changes).
+    Exponential,
+    /// MPRK22 (modified Patankar–Runge–Kutta, second order): the whole tick
+    /// when it is mild, substeps of the exponential MPRK22 when it is stiff
+    /// ([`StepReport::substeps`]).
     Mprk22,
     /// Reference: classical Runge–Kutta, fourth order (not positivity-preserving).
     ReferenceRk4,
@@ -142,7 +154,11 @@ pub struct StepReport<S> {
     /// The integrator used for the component balances.
     pub method: MethodUsed,
     /// Number of reaction-rate evaluations (each covers all reactions).
-    pub rate_evaluations: u8,
+    pub rate_evaluations: u16,
+    /// Substeps of a general network's tick, accepted and rejected (1 when
+    /// the tick was stepped whole; 0 for the closed forms and the reference
+    /// methods).
+    pub substeps: u16,
     /// Number of clamps applied (inputs replaced, amounts set to zero,
     /// holdup limited).
     pub clamps: u8,

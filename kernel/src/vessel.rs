@@ -27,10 +27,11 @@
 //! of the computed outlets (each a level inversion of bounded iterations),
 //! then the integrator's fixed work; no heap, no recursion, no panic.
 
+use crate::integrate::linear::{phi_step, LinearStep};
 #[cfg(feature = "reference-methods")]
 use crate::integrate::{euler_step, rk4_step, TickRhs};
 use crate::integrate::{exact, mprk22_step, TickFrame};
-use crate::model::{Inputs, Method, Model, Outlet};
+use crate::model::{Inputs, Method, Model, Network, Outlet};
 use crate::status::{MethodUsed, StatusFlags, StepReport};
 use crate::units::Millis;
 use crate::{Compensated, Error, Scalar};
@@ -376,7 +377,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
                 let mixed = y0[i] + h * feed[i];
                 d[i] = h * feed[i] - frac * mixed;
             }
-            Some(d)
+            Some(increment(d))
         } else {
             let mut k = [[S::ZERO; 2]; R];
             self.model.rate_constants(self.temperature, &mut k);
@@ -394,9 +395,16 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
 
         // 4. Totals.
         match delta {
-            Some(d) if d.iter().all(|x| x.is_finite()) => {
-                for ((a, &di), &yi) in self.amounts.iter_mut().zip(d.iter()).zip(y0.iter()) {
-                    a.add(di);
+            Some(step) if step.delta.iter().all(|x| x.is_finite()) => {
+                for (i, (a, &yi)) in self.amounts.iter_mut().zip(y0.iter()).enumerate() {
+                    let di = step.delta[i];
+                    if step.use_direct[i] {
+                        // Computed without cancellation (a fast-consumed
+                        // species; see `integrate::linear::phi_step`).
+                        a.set(step.direct[i]);
+                    } else {
+                        a.add(di);
+                    }
                     let v = a.value();
                     if v < S::MIN_POSITIVE {
                         // Rounding may leave −ulp; anything larger is a real
@@ -452,22 +460,36 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
         frame: &TickFrame<S, N, R>,
         y0: &[S; N],
         rep: &mut StepReport<S>,
-    ) -> Option<[S; N]> {
+    ) -> Option<LinearStep<S, N>> {
         let model = &self.model;
         let want_exact = match model.method {
-            Method::Auto | Method::Exact => model.exact_class,
+            Method::Auto | Method::Exact => model.network != Network::General,
             _ => false,
         };
         if want_exact {
-            let lam = model.first_order_constants(&frame.k);
-            if let Some(d) = exact(frame, y0, &lam) {
-                rep.method = MethodUsed::Exact;
-                rep.rate_evaluations = 0;
-                return Some(d);
+            if model.network == Network::Uncoupled {
+                let lam = model.first_order_constants(&frame.k);
+                if let Some(d) = exact(frame, y0, &lam) {
+                    rep.method = MethodUsed::Exact;
+                    rep.rate_evaluations = 0;
+                    return Some(increment(d));
+                }
             }
-            if model.method == Method::Exact {
+            // A first-order network, or an uncoupled one whose holdup
+            // changes while it reacts: the matrix exponential with the
+            // tick-mean dilution q_out·ln(V₁/V₀)/(V₁ − V₀).
+            let x = (frame.v1 - frame.v0) / frame.v0;
+            let varying = x != S::ZERO;
+            let g = if varying { x.ln1p() / x } else { S::ONE };
+            let dilution = frame.q_out * g / frame.v0;
+            let m = model.network_matrix(&frame.k, dilution);
+            let r = model.network_residual(&frame.k, dilution, y0, &frame.feed);
+            if varying && model.reaction_count() > 0 && model.method == Method::Exact {
                 rep.flags |= StatusFlags::METHOD_FALLBACK;
             }
+            rep.method = MethodUsed::Exponential;
+            rep.rate_evaluations = 0;
+            return phi_step(&m, &frame.feed, &r, y0, frame.h, model.max_squarings).ok();
         }
         #[cfg(feature = "reference-methods")]
         {
@@ -477,7 +499,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
                 for i in 0..N {
                     d[i] = y1[i] - y0[i];
                 }
-                d
+                increment(d)
             };
             match model.method {
                 Method::ReferenceRk4 => {
@@ -495,7 +517,22 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
         }
         // Without the feature `Model::new` refuses the reference methods.
         rep.method = MethodUsed::Mprk22;
-        mprk22_step(model, frame, y0, &mut rep.rate_evaluations).ok()
+        let out = mprk22_step(model, frame, y0, &mut rep.rate_evaluations).ok()?;
+        rep.substeps = out.substeps.accepted.saturating_add(out.substeps.rejected);
+        if out.substeps.exhausted {
+            rep.flags |= StatusFlags::SUBSTEP_BUDGET;
+        }
+        Some(increment(out.delta))
+    }
+}
+
+/// An increment to be added to the amounts (no species set directly).
+#[inline]
+fn increment<S: Scalar, const N: usize>(delta: [S; N]) -> LinearStep<S, N> {
+    LinearStep {
+        delta,
+        direct: [S::ZERO; N],
+        use_direct: [false; N],
     }
 }
 

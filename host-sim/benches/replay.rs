@@ -43,8 +43,9 @@
 //! chained piece to piece from `c(0) = c₀`. The feed is a step at the first
 //! row of each grade, which is exactly what the replay's zero-order hold
 //! feeds the kernel (the inputs of the tick `[t, t + 1 s)` are the row at
-//! `t`), so the only differences left are the kernel's `f32` rounding and the
-//! printing of `estimates.csv` (7 significant digits, up to 5e-7 relative).
+//! `t`), so the only difference left is the kernel's `f32` rounding
+//! (`estimates.csv` prints the shortest digits that read back to the same
+//! `f32`, so the printing adds none).
 //!
 //! ## What is measured
 //!

@@ -5,12 +5,14 @@
 //! [`units`]), [`log`] (streaming CSV → resampled tag values), [`lab`] (lab
 //! results), [`to_kernel`] (plant → kernel types), [`correct`] (the observer
 //! with its lab schedule), [`replay`] (the tick loop,
-//! estimates, summary), [`plot`] (SVG figures); [`demo`] generates an
+//! estimates, summary, with [`digits`] for the figures it writes),
+//! [`plot`] (SVG figures); [`demo`] generates an
 //! invented plant's files; [`verify`] holds the analytic cases.
 
 pub mod config;
 pub mod correct;
 pub mod demo;
+pub mod digits;
 pub mod lab;
 pub mod log;
 pub mod plant;

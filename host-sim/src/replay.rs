@@ -21,6 +21,7 @@ use serde_json::json;
 
 use crate::correct::Corrector;
 use crate::demo::CAUTION;
+use crate::digits::Digits;
 use crate::lab::{self, Comparison, LabError, LabResult};
 use crate::log::{LogError, LogReader, SampleState};
 use crate::plant::{OutletKind, Plant, ScalarKind, Signal};
@@ -523,6 +524,7 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
     let mut ticks: u64 = 0;
     let mut t = t0;
     let mut row = String::new();
+    let dg = Digits::of::<S>();
     while let Some(samples) = reader.sample(t)? {
         let (u, quality, flows_now, measured_level) = sources.inputs::<S, N>(samples);
         // One reading per analyser cycle: a historian that repeats the last
@@ -700,33 +702,39 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
         }
         if (t - t0) % every == 0 {
             row.clear();
-            row.push_str(&format!("{},{:.6},{:.6e}", iso(t), x, v));
+            // elapsed_h is a convenience beside the exact time; every other
+            // figure with the digits of the replay's scalar type.
+            row.push_str(&format!("{},{:.6},{}", iso(t), x, dg.sci(v)));
             if let Some(cs) = &cstate {
-                row.push_str(&format!(",{:.3e}", cs.volume.1));
+                row.push_str(&format!(",{}", dg.sci(cs.volume.1)));
             }
-            row.push_str(&format!(",{z:.6}"));
+            row.push_str(&format!(",{}", dg.pos(z)));
             if let Some(m) = measured_level {
                 if m.is_finite() {
-                    row.push_str(&format!(",{m:.6}"));
+                    row.push_str(&format!(",{}", dg.pos(m)));
                 } else {
                     row.push(',');
                 }
             }
             for i in 0..n_species.min(N) {
-                row.push_str(&format!(",{:.6e}", conc[i]));
+                row.push_str(&format!(",{}", dg.sci(conc[i])));
                 if let Some(cs) = &cstate {
-                    row.push_str(&format!(",{:.3e},{:.6e}", cs.conc_sigma[i], open_conc[i]));
+                    row.push_str(&format!(
+                        ",{},{}",
+                        dg.sci(cs.conc_sigma[i]),
+                        dg.sci(open_conc[i])
+                    ));
                 }
             }
             for c in &analysed {
                 match c {
-                    Some(c) => row.push_str(&format!(",{c:.6e}")),
+                    Some(c) => row.push_str(&format!(",{}", dg.sci(*c))),
                     None => row.push(','),
                 }
             }
             if let Some(cs) = &cstate {
                 for b in &cs.bias {
-                    row.push_str(&format!(",{:.5},{:.5}", b.0, b.1));
+                    row.push_str(&format!(",{},{}", dg.pos(b.0), dg.pos(b.1)));
                 }
             }
             let names: Vec<&str> = report.flags.names().collect();

@@ -53,6 +53,12 @@ const T_REF: f64 = 298.15;
 /// The reference model. Errors only if the constants above were edited into
 /// something invalid.
 pub fn model<S: Scalar>() -> Result<Model<S, N, R, O>, Error> {
+    Model::new(spec()?)
+}
+
+/// The reference model's raw description (for variants of it, such as the
+/// firmware's stiff scenario).
+pub fn spec<S: Scalar>() -> Result<VesselSpec<S, N, R, O>, Error> {
     let geometry = Geometry::new(Shape::VerticalCylinder {
         diameter: S::of(1.6),
         height: S::of(2.0),
@@ -81,7 +87,7 @@ pub fn model<S: Scalar>() -> Result<Model<S, N, R, O>, Error> {
         reverse: None,
         reference_temperature: S::of(T_REF),
     });
-    Model::new(VesselSpec {
+    Ok(VesselSpec {
         geometry,
         outlets,
         reactions,
@@ -94,14 +100,16 @@ pub fn model<S: Scalar>() -> Result<Model<S, N, R, O>, Error> {
 /// The reference vessel at the start of the shift: 2.5 m³ of water-diluted
 /// product at 25 °C.
 pub fn vessel<S: Scalar>() -> Result<ReferenceVessel<S>, Error> {
-    Vessel::new(
-        model()?,
-        &InitialState {
-            volume: S::of(2.5),
-            concentrations: [S::of(5.0), S::of(5.0), S::of(40.0)],
-            temperature: S::of(T_REF),
-        },
-    )
+    Vessel::new(model()?, &initial_state())
+}
+
+/// The reference vessel's state at the start of the shift.
+pub fn initial_state<S: Scalar>() -> InitialState<S, N> {
+    InitialState {
+        volume: S::of(2.5),
+        concentrations: [S::of(5.0), S::of(5.0), S::of(40.0)],
+        temperature: S::of(T_REF),
+    }
 }
 
 /// The scenario's inputs at time `t` (ms since the start of the shift).

@@ -454,7 +454,10 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
     }
 
     /// Component increment by the configured integrator; `None` on a
-    /// numerical fault.
+    /// numerical fault. Out of line: `step` is generic over the inlet count,
+    /// and one copy of the integrators serves every instance (10 KiB of a
+    /// gateway image otherwise).
+    #[inline(never)]
     fn component_increment(
         &self,
         frame: &TickFrame<S, N, R>,

@@ -100,6 +100,8 @@ const OBS_BIAS_BAND: f32 = 0.005;
 
 /// The targets of the gateway issue.
 const TARGET_OPEN_LOOP: u32 = 1_500;
+/// Worst stiff tick of the stiff scenario, instructions (issue 11).
+const TARGET_STIFF_WORST: u32 = 500_000;
 const TARGET_OBSERVER: u32 = 6_000;
 const TARGET_STATE_BYTES: usize = 2 * 1024;
 
@@ -182,6 +184,7 @@ fn run(out: &mut Report, cp: cortex_m::Peripherals) -> bool {
     let mut pass = true;
     pass &= analytic(out, &meter, &mut delay);
     pass &= reference_run(out, &meter, &mut delay);
+    pass &= stiff_run(out, &meter, &mut delay);
     pass &= observed_run(out, &meter, &mut delay);
     signal_cost(out, &meter);
     #[cfg(feature = "checkpoint")]
@@ -361,6 +364,60 @@ fn reference_run(out: &mut Report, meter: &platform::Meter, delay: &mut platform
         out.value(
             "target open-loop tick mean < 1500 instructions (gated)",
             mean,
+            if met {
+                "instructions: met"
+            } else {
+                "instructions: MISSED"
+            },
+        );
+    }
+    ok && met
+}
+
+/// The stiff scenario ([`scenarios::stiff_vessel`]): the reference shift's
+/// first two hours with the saponification 10⁴ times faster. Checked for
+/// finite, non-negative amounts and no status flag (in particular no
+/// exhausted substep budget); the worst tick is gated.
+fn stiff_run(out: &mut Report, meter: &platform::Meter, delay: &mut platform::Delay) -> bool {
+    let Ok(mut v) = scenarios::stiff_vessel::<f32>() else {
+        out.line("stiff vessel: configuration rejected");
+        return false;
+    };
+    let mut sane = true;
+    let stats = tick::run(
+        &mut v,
+        meter,
+        delay,
+        reference::TICK_MS * 1_000_000,
+        scenarios::STIFF_TICKS,
+        scenarios::STIFF_TICKS / 4,
+        |n| reference::inputs_at::<f32>(u64::from(n) * u64::from(reference::TICK_MS)),
+        |_, v| {
+            let a = v.amounts();
+            sane &= a.iter().all(|x| x.is_finite() && *x >= 0.0);
+        },
+    );
+    let ok = sane && stats.flags.is_empty();
+    out.count(
+        "stiff reference (k x 1e4): finite, non-negative, no flag",
+        u32::from(ok),
+        "",
+    );
+    let unit = <platform::Meter as Meter>::UNIT;
+    out.cost(
+        "stiff reference tick (k x 1e4)",
+        unit,
+        stats.ticks,
+        stats.min,
+        stats.mean(),
+        stats.max,
+    );
+    let mut met = true;
+    if unit == "instructions" {
+        met = stats.max < TARGET_STIFF_WORST;
+        out.value(
+            "target stiff tick worst < 500000 instructions (gated)",
+            stats.max as f32,
             if met {
                 "instructions: met"
             } else {

@@ -98,3 +98,25 @@ pub fn exact_inputs<S: Scalar>() -> Inputs<S, 3, 1, 1> {
         temperature: S::of(EXACT_TEMPERATURE),
     }
 }
+
+/// Stiff scenario: the reference vessel and network with the
+/// saponification 10⁴ times faster (`k = 1.1 m³/(mol·s)` at 25 °C), so that
+/// `k·c·h` is about 5 at the start and at the ester pump's drop: the
+/// general network's substepped path. Ticks measured.
+pub const STIFF_TICKS: u32 = 2 * 3600;
+
+/// Factor on the reference saponification rate constant.
+pub const STIFF_FACTOR: f64 = 1e4;
+
+/// The stiff scenario's vessel at `t = 0`: the reference vessel with its
+/// first reaction [`STIFF_FACTOR`] times faster.
+pub fn stiff_vessel<S: Scalar>() -> Result<holdup_kernel::reference::ReferenceVessel<S>, Error> {
+    let mut spec = holdup_kernel::reference::spec::<S>()?;
+    if let Some(r) = spec.reactions.get_mut(0) {
+        r.forward.rate_constant *= S::of(STIFF_FACTOR);
+    }
+    Vessel::new(
+        Model::new(spec)?,
+        &holdup_kernel::reference::initial_state(),
+    )
+}

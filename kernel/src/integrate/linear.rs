@@ -128,6 +128,7 @@ pub(crate) struct LinearStep<S, const N: usize> {
 /// reaction by reaction, so that the net extent of a fast reversible
 /// reaction is rounded once and conservation holds to the rounding of the
 /// small net change, not of the large gross rates).
+#[inline(never)]
 pub(crate) fn phi_step<S: Scalar, const N: usize>(
     m: &[[S; N]; N],
     f: &[S; N],
@@ -169,8 +170,8 @@ pub(crate) fn phi_step<S: Scalar, const N: usize>(
     let mut scaled = norm;
     let mut factor = S::ONE;
     while s < max_squarings && !(scaled <= theta) {
-        scaled = scaled * S::HALF;
-        factor = factor * S::HALF;
+        scaled *= S::HALF;
+        factor *= S::HALF;
         s += 1;
     }
     for row in a.iter_mut() {
@@ -260,7 +261,7 @@ pub(crate) fn squarings_bound<S: Scalar>(h: S, k_norm: S) -> u16 {
     let mut s = 0u16;
     let mut x = bound / S::of(THETA);
     while s < type_cap && x > S::ONE {
-        x = x * S::HALF;
+        x *= S::HALF;
         s += 1;
     }
     s

@@ -403,6 +403,7 @@ fn stiffness<S: Scalar, const N: usize, const R: usize, const O: usize>(
 /// species' size — a steady state); otherwise sized so that its largest
 /// weight is `FIRST_WEIGHT`. Rates are evaluated once per accepted state
 /// (a rejected substep reuses them).
+#[inline(never)]
 pub(crate) fn substepped<S: Scalar, const N: usize, const R: usize, const O: usize>(
     model: &Model<S, N, R, O>,
     fr: &TickFrame<S, N, R>,

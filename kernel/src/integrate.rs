@@ -27,11 +27,13 @@
 //!   weight a direction (the limiting ones) are unknowns. Two ways through
 //!   a tick, both with a steady state of the held inputs as a fixed point:
 //!   * `whole_step` — a *mild* tick (every direction's weight and the
-//!     dilution `h·q_in/V` at most 1/2): MPRK22 on the concentrations with
+//!     dilution `h·q_in/V` at most 0.02): MPRK22 on the concentrations with
 //!     feed, dilution and reactions together; two stages.
-//!   * [`stiff`] — every other tick: substeps of an exponential MPRK22
-//!     (transport exact, reactions by Patankar weights), sized by an
-//!     embedded error estimate, at most [`stiff::MAX_SUBSTEPS`] per tick.
+//!   * [`stiff`] — every other tick: error-controlled substeps of the
+//!     quasi-linear exponential (each direction frozen as first order in
+//!     its limiting reactant, the frozen linear system stepped exactly;
+//!     exact for first-order decays however fast), at most
+//!     [`stiff::MAX_SUBSTEPS`] per tick.
 //! * [`euler_step`], [`rk4_step`] — reference methods for work–precision
 //!   comparisons, generic over any [`Rhs`]. Not positive: explicit Euler
 //!   goes negative at `λh > 1` and diverges at `λh > 2`.

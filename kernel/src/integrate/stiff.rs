@@ -1,4 +1,17 @@
-//! Stiff ticks of a general network: substeps of an exponential MPRK22.
+//! Stiff ticks of a general network: error-controlled substeps.
+//!
+//! Two substep methods. The **quasi-linear exponential** takes every
+//! substep but a mild whole tick: each reaction direction is frozen as
+//! first order in its most depleted reactant (`ρ = (ρ/c_l)·c_l`), the
+//! frozen linear system with the transport is stepped exactly by
+//! [`super::linear`] (stage 1 frozen at the substep's start, stage 2 at the
+//! midpoint of the start and stage 1: second order); it is exact for a
+//! first-order decay however fast, conservative (columns carry whole
+//! stoichiometric vectors), non-negative for single-reactant directions
+//! (a co-reactant is clipped at zero), and a steady state is a fixed point
+//! (the increment is proportional to the residual). The **exponential
+//! MPRK22** below steps a tick whole when its largest Patankar weight is at
+//! most 0.02:
 //!
 //! A tick that is not mild (a reaction direction or the dilution too fast
 //! for the whole-tick MPRK22) is covered by substeps, each of which treats

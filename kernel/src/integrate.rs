@@ -108,6 +108,31 @@ pub fn rk4_step<S: Scalar, const N: usize, F: Rhs<S, N>>(f: &F, t: S, y: &[S; N]
     out
 }
 
+/// The outcome of one tick's integrator: the increment of the amounts, and
+/// the new amounts computed without cancellation for species whose total
+/// should be set rather than incremented (see [`linear::phi_step`]).
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct Advance<S, const N: usize> {
+    /// `n₁ − n₀`.
+    pub(crate) delta: [S; N],
+    /// `n₁` where `use_direct` says so.
+    pub(crate) direct: [S; N],
+    /// Species whose new amount is taken from `direct`.
+    pub(crate) use_direct: [bool; N],
+}
+
+impl<S: Scalar, const N: usize> Advance<S, N> {
+    /// An increment to be added to every amount.
+    #[inline]
+    pub(crate) fn increment(delta: [S; N]) -> Self {
+        Self {
+            delta,
+            direct: [S::ZERO; N],
+            use_direct: [false; N],
+        }
+    }
+}
+
 /// Everything held over one tick, SI units.
 #[derive(Clone, Copy, Debug)]
 pub struct TickFrame<S, const N: usize, const R: usize> {
@@ -132,6 +157,18 @@ impl<S: Scalar, const N: usize, const R: usize> TickFrame<S, N, R> {
     #[inline]
     pub fn volume_at(&self, t: S) -> S {
         self.v0 + (self.v1 - self.v0) * (t / self.h)
+    }
+
+    /// The mean of `1/V` over `[t, t + τ]`, 1/m³: `ln(V_b/V_a)/(V_b − V_a)`,
+    /// written `g/V_a` with `g = ln(1 + x)/x`, `x = (V_b − V_a)/V_a` (→ 1 at
+    /// constant holdup), so that `f32` keeps its digits when the holdup
+    /// barely changes. A flow times it is the mean dilution rate.
+    #[inline]
+    pub fn mean_inverse_volume(&self, t: S, tau: S) -> S {
+        let va = self.volume_at(t);
+        let x = (self.volume_at(t + tau) - va) / va;
+        let g = if x != S::ZERO { x.ln1p() / x } else { S::ONE };
+        g / va
     }
 }
 
@@ -179,12 +216,12 @@ pub(crate) fn exact<S: Scalar, const N: usize, const R: usize>(
     }
     let h = fr.h;
     let x = (fr.v1 - fr.v0) / fr.v0;
-    // g(x) = ln(1 + x)/x → 1 as x → 0; exponent of the dilution = q_in·h·g/V₀.
-    let g = if varying { x.ln1p() / x } else { S::ONE };
-    let dilution = fr.q_in * h * g / fr.v0;
+    // Exponent of the dilution: q_in·∫1/V dt.
+    let inv_v = fr.mean_inverse_volume(S::ZERO, h);
+    let dilution = fr.q_in * h * inv_v;
     let mut d = [S::ZERO; N];
     // Species without first-order consumption share one exponent: one
-    // `expm1` serves them all (saves N − 1 calls per tick in the split step).
+    // `expm1` serves them all.
     let mut cached: Option<(S, S, S)> = None;
     for i in 0..N {
         let e = dilution + lam[i] * h;
@@ -199,9 +236,41 @@ pub(crate) fn exact<S: Scalar, const N: usize, const R: usize>(
             }
         };
         let c0 = y0[i] / fr.v0;
-        d[i] = fr.v1 * (fr.feed[i] * h * g * psi / fr.v0 - c0 * phi) + x * y0[i];
+        d[i] = fr.v1 * (fr.feed[i] * h * inv_v * psi - c0 * phi) + x * y0[i];
     }
     Some(d)
+}
+
+/// The species that weights a reaction direction (`sign` +1 forward, −1
+/// reverse): its most depleted reactant, the largest `|ν_i|/den_i`
+/// (compared as `|ν_i|·den_l > |ν_l|·den_i`, no division), with its `|ν_l|`
+/// and `den_l`. `None` when the direction consumes nothing, or when one of
+/// its reactants is exhausted (the direction cannot run). Shared by the
+/// Patankar stages and the quasi-linear exponential ([`stiff`]), so both
+/// write a direction against the same species.
+#[inline(always)]
+pub(crate) fn limiting<S: Scalar, const N: usize>(
+    nu: &[S; N],
+    den: &[S; N],
+    sign: S,
+) -> Option<(usize, S, S)> {
+    let mut l = N;
+    let mut nu_l = S::ZERO;
+    let mut den_l = S::ONE;
+    for (i, (&n, &di)) in nu.iter().zip(den.iter()).enumerate() {
+        let consumed = -sign * n;
+        if consumed > S::ZERO {
+            if !(di > tiny()) {
+                return None;
+            }
+            if l >= N || consumed * den_l > nu_l * di {
+                nu_l = consumed;
+                den_l = di;
+                l = i;
+            }
+        }
+    }
+    (l < N).then_some((l, nu_l, den_l))
 }
 
 /// Below this a denominator of a Patankar weight counts as zero.
@@ -254,28 +323,9 @@ impl<S: Scalar, const N: usize> PatankarSystem<S, N> {
                     continue;
                 }
                 let sign = if dir == 0 { S::ONE } else { -S::ONE };
-                // Most depleted reactant: largest |ν_i|/den_i, compared as
-                // |ν_i|·den_l > |ν_l|·den_i (no division).
-                let mut l = N;
-                let mut nu_l = S::ZERO;
-                let mut den_l = S::ONE;
-                let mut blocked = false;
-                for (i, (&nu, &di)) in reaction.nu.iter().zip(den.iter()).enumerate() {
-                    let consumed = -sign * nu;
-                    if consumed > S::ZERO {
-                        if !(di > tiny()) {
-                            blocked = true;
-                        } else if l >= N || consumed * den_l > nu_l * di {
-                            nu_l = consumed;
-                            den_l = di;
-                            l = i;
-                        }
-                    }
-                }
-                if blocked {
-                    // A reactant is exhausted: the direction cannot run.
+                let Some((l, nu_l, den_l)) = limiting(&reaction.nu, den, sign) else {
                     continue;
-                }
+                };
                 let (Some(column), Some(flag)) = (sys.u.get_mut(l), sys.weighting.get_mut(l))
                 else {
                     continue;
@@ -421,27 +471,25 @@ pub(crate) fn mprk22_step<S: Scalar, const N: usize, const R: usize, const O: us
     let h = fr.h;
     let mild = S::of(MILD);
     let inv_v0 = S::ONE / fr.v0;
-    if h * fr.q_in * inv_v0 <= mild && h * fr.q_in / fr.v1 <= mild {
-        let mut c0 = [S::ZERO; N];
-        for (c, &y) in c0.iter_mut().zip(y0.iter()) {
-            *c = y * inv_v0;
-        }
-        let mut r0 = [[S::ZERO; 2]; R];
-        model.molar_rates(&fr.k, &c0, S::ONE, &mut r0);
-        *evals = evals.saturating_add(1);
-        let sys = PatankarSystem::assemble(model, &r0, &c0, h);
-        if sys.stiffest <= mild {
-            let delta = whole_step(model, fr, &c0, &r0, &sys, evals)?;
-            return Ok(Mprk22Outcome {
-                delta,
-                substeps: stiff::Substeps {
-                    accepted: 1,
-                    ..Default::default()
-                },
-            });
-        }
+    let mut c0 = [S::ZERO; N];
+    for (c, &y) in c0.iter_mut().zip(y0.iter()) {
+        *c = y * inv_v0;
     }
-    let (delta, substeps) = stiff::substepped(model, fr, y0, evals)?;
+    let mut r0 = [[S::ZERO; 2]; R];
+    model.molar_rates(&fr.k, &c0, S::ONE, &mut r0);
+    *evals = evals.saturating_add(1);
+    let sys = PatankarSystem::assemble(model, &r0, &c0, h);
+    if h * fr.q_in * inv_v0 <= mild && h * fr.q_in / fr.v1 <= mild && sys.stiffest <= mild {
+        let delta = whole_step(model, fr, &c0, &r0, &sys, evals)?;
+        return Ok(Mprk22Outcome {
+            delta,
+            substeps: stiff::Substeps {
+                accepted: 1,
+                ..Default::default()
+            },
+        });
+    }
+    let (delta, substeps) = stiff::substepped(model, fr, &c0, &r0, sys.stiffest, evals)?;
     Ok(Mprk22Outcome { delta, substeps })
 }
 
@@ -644,38 +692,26 @@ mod tests {
         }
     }
 
-    /// The exponential MPRK22 substep is second order: on 2A → B in a
-    /// closed vessel (Riccati closed form `c_A = c₀/(1 + 2k·c₀·t)`, derived
-    /// from the balance), halving a single substep cuts its error about
-    /// eightfold (local error O(τ³)); with feed and dilution, against the
-    /// same step taken as 64 substeps.
+    /// The quasi-linear exponential substep is second order: on 2A → B in
+    /// a closed vessel (Riccati closed form `c_A = c₀/(1 + 2k·c₀·t)`,
+    /// derived from the balance), halving a single substep cuts its error
+    /// about eightfold (local error O(τ³)).
     #[test]
-    fn exponential_mprk22_substep_is_second_order() {
+    fn quasi_linear_substep_is_second_order() {
         let model = network::<2, 1>(&[([-2.0, 1.0], 1.0, None)]);
         let c0 = 1.0;
         let mut last = f64::NAN;
         for tau in [0.04, 0.02, 0.01, 0.005, 0.0025] {
             let fr = frame(&model, tau, 1.0, 0.0, [0.0, 0.0]);
-            let (_, d2) = stiff_substep(&model, &fr, tau, &[c0, 0.0]);
+            let (_, d2) = stiff::tests_substep(&model, &fr, tau, &[c0, 0.0]).unwrap();
             let exact = c0 / (1.0 + 2.0 * c0 * tau);
             let err = ((c0 + d2[0]) - exact).abs();
             if last.is_finite() {
                 let ratio = last / err;
-                println!("τ {tau}: error {err:e}, ratio {ratio}");
-                assert!(ratio > 6.5 && ratio < 9.0, "τ {tau}: ratio {ratio}");
+                assert!(ratio > 7.0 && ratio < 9.0, "τ {tau}: ratio {ratio}");
             }
             last = err;
         }
-    }
-
-    fn stiff_substep<const N: usize, const R: usize>(
-        model: &Model<f64, N, R, 1>,
-        fr: &TickFrame<f64, N, R>,
-        tau: f64,
-        c0: &[f64; N],
-    ) -> ([f64; N], [f64; N]) {
-        let mut evals = 0u16;
-        stiff::tests_substep(model, fr, tau, c0, &mut evals).unwrap()
     }
 
     /// The reduced solve (weighting species first) against the dense

@@ -24,6 +24,7 @@
 use heapless::Vec;
 
 use crate::geometry::Geometry;
+use crate::integrate::linear::Pseudo;
 use crate::units::{GAS_CONSTANT, STANDARD_GRAVITY};
 use crate::{Error, Scalar};
 
@@ -763,61 +764,24 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
         }
     }
 
-    /// The matrix `M = K − d·I` of a first-order network (1/s) at rate
-    /// constants `k` and dilution `d` (1/s): `dn/dt = f + M·n`, with
-    /// `K[i][l] += ±ν_i·k` for each direction consuming `l` (see
-    /// [`crate::integrate::linear`]). Meaningful only for
-    /// [`Network::FirstOrder`] and [`Network::Uncoupled`].
-    pub(crate) fn network_matrix(&self, k: &[[S; 2]; R], d: S) -> [[S; N]; N] {
-        let mut m = [[S::ZERO; N]; N];
-        for (i, row) in m.iter_mut().enumerate() {
-            row[i] = -d;
-        }
-        for (r, kj) in self.reactions.iter().zip(k.iter()) {
-            for (dir, sign) in [(0usize, S::ONE), (1, -S::ONE)] {
-                let kd = kj[dir];
-                if dir == 1 && r.reverse.is_none() {
-                    continue;
-                }
-                // The consumed species of this direction.
-                let Some(l) = r.nu.iter().position(|&n| sign * n < S::ZERO) else {
-                    continue;
-                };
-                for (row, &nu) in m.iter_mut().zip(r.nu.iter()) {
-                    row[l] += sign * nu * kd;
-                }
-            }
-        }
-        m
-    }
-
-    /// The residual `M·n + f` of a first-order network (mol/s) for amounts
-    /// `n`, feed `f` (mol/s), rate constants `k` and dilution `d` (1/s),
-    /// formed reaction by reaction: each reaction's net extent
-    /// `k_f·n_A − k_r·n_B` is rounded once and given to every species by its
-    /// stoichiometry, so a fast reversible reaction near equilibrium does
-    /// not leave the rounding of its gross rates in the conserved totals.
-    pub(crate) fn network_residual(&self, k: &[[S; 2]; R], d: S, n: &[S; N], f: &[S; N]) -> [S; N] {
-        let mut r = [S::ZERO; N];
-        for i in 0..N {
-            r[i] = f[i] - d * n[i];
-        }
-        for (reaction, kj) in self.reactions.iter().zip(k.iter()) {
-            let consumed = |sign: S| reaction.nu.iter().position(|&x| sign * x < S::ZERO);
-            let mut net = S::ZERO;
-            if let Some(l) = consumed(S::ONE) {
-                net = kj[0] * n[l];
+    /// A first-order network's directions as `(consumed species, rate
+    /// constant)` at rate constants `k` (see
+    /// [`crate::integrate::linear::Pseudo`]). Meaningful only for
+    /// [`Network::FirstOrder`] and [`Network::Uncoupled`], where each
+    /// direction consumes exactly one species at order 1.
+    pub(crate) fn first_order_pseudo(&self, k: &[[S; 2]; R]) -> Pseudo<S, R> {
+        let mut pseudo = [[(N, S::ZERO); 2]; R];
+        for ((reaction, kj), ps) in self.reactions.iter().zip(k.iter()).zip(pseudo.iter_mut()) {
+            if let Some(l) = reaction.nu.iter().position(|&x| x < S::ZERO) {
+                ps[0] = (l, kj[0]);
             }
             if reaction.reverse.is_some() {
-                if let Some(p) = consumed(-S::ONE) {
-                    net -= kj[1] * n[p];
+                if let Some(p) = reaction.nu.iter().position(|&x| x > S::ZERO) {
+                    ps[1] = (p, kj[1]);
                 }
             }
-            for (ri, &nu) in r.iter_mut().zip(reaction.nu.iter()) {
-                *ri += nu * net;
-            }
         }
-        r
+        pseudo
     }
 
     /// First-order consumption constant of each species (1/s) at rate

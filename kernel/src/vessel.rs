@@ -27,10 +27,10 @@
 //! of the computed outlets (each a level inversion of bounded iterations),
 //! then the integrator's fixed work; no heap, no recursion, no panic.
 
-use crate::integrate::linear::{phi_step, LinearStep};
+use crate::integrate::linear::{phi_step, residual, system_matrix};
 #[cfg(feature = "reference-methods")]
 use crate::integrate::{euler_step, rk4_step, TickRhs};
-use crate::integrate::{exact, mprk22_step, TickFrame};
+use crate::integrate::{exact, mprk22_step, Advance, TickFrame};
 use crate::model::{Inputs, Method, Model, Network, Outlet};
 use crate::status::{MethodUsed, StatusFlags, StepReport};
 use crate::units::Millis;
@@ -377,7 +377,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
                 let mixed = y0[i] + h * feed[i];
                 d[i] = h * feed[i] - frac * mixed;
             }
-            Some(increment(d))
+            Some(Advance::increment(d))
         } else {
             let mut k = [[S::ZERO; 2]; R];
             self.model.rate_constants(self.temperature, &mut k);
@@ -463,7 +463,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
         frame: &TickFrame<S, N, R>,
         y0: &[S; N],
         rep: &mut StepReport<S>,
-    ) -> Option<LinearStep<S, N>> {
+    ) -> Option<Advance<S, N>> {
         let model = &self.model;
         let want_exact = match model.method {
             Method::Auto | Method::Exact => model.network != Network::General,
@@ -475,18 +475,17 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
                 if let Some(d) = exact(frame, y0, &lam) {
                     rep.method = MethodUsed::Exact;
                     rep.rate_evaluations = 0;
-                    return Some(increment(d));
+                    return Some(Advance::increment(d));
                 }
             }
             // A first-order network, or an uncoupled one whose holdup
             // changes while it reacts: the matrix exponential with the
             // tick-mean dilution q_out·ln(V₁/V₀)/(V₁ − V₀).
-            let x = (frame.v1 - frame.v0) / frame.v0;
-            let varying = x != S::ZERO;
-            let g = if varying { x.ln1p() / x } else { S::ONE };
-            let dilution = frame.q_out * g / frame.v0;
-            let m = model.network_matrix(&frame.k, dilution);
-            let r = model.network_residual(&frame.k, dilution, y0, &frame.feed);
+            let dilution = frame.q_out * frame.mean_inverse_volume(S::ZERO, frame.h);
+            let pseudo = model.first_order_pseudo(&frame.k);
+            let m = system_matrix(model, &pseudo, dilution);
+            let r = residual(model, &pseudo, &frame.feed, dilution, y0);
+            let varying = frame.v1 != frame.v0;
             if varying && model.reaction_count() > 0 && model.method == Method::Exact {
                 rep.flags |= StatusFlags::METHOD_FALLBACK;
             }
@@ -502,7 +501,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
                 for i in 0..N {
                     d[i] = y1[i] - y0[i];
                 }
-                increment(d)
+                Advance::increment(d)
             };
             match model.method {
                 Method::ReferenceRk4 => {
@@ -525,17 +524,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Vessel<S, N, R, 
         if out.substeps.exhausted {
             rep.flags |= StatusFlags::SUBSTEP_BUDGET;
         }
-        Some(increment(out.delta))
-    }
-}
-
-/// An increment to be added to the amounts (no species set directly).
-#[inline]
-fn increment<S: Scalar, const N: usize>(delta: [S; N]) -> LinearStep<S, N> {
-    LinearStep {
-        delta,
-        direct: [S::ZERO; N],
-        use_direct: [false; N],
+        Some(Advance::increment(out.delta))
     }
 }
 

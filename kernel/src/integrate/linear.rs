@@ -55,7 +55,9 @@
 //! matrix–vector product, or one `N × N` solve for a flush. No loop depends
 //! on input values beyond `s_max`.
 
+use super::Advance;
 use crate::linalg::{mat_mul, solve, zeros, Singular};
+use crate::model::Model;
 use crate::Scalar;
 
 /// Largest one-norm of the scaled matrix given to the Taylor series.
@@ -99,17 +101,66 @@ fn norms<S: Scalar, const N: usize>(a: &[[S; N]; N]) -> (S, S) {
     (norm, log_norm)
 }
 
-/// The outcome of one linear step: the increment, and the new amounts
-/// computed without cancellation for the species that fall by more than
-/// half in the tick (see [`phi_step`]).
-#[derive(Clone, Copy, Debug)]
-pub(crate) struct LinearStep<S, const N: usize> {
-    /// `n₁ − n₀`.
-    pub(crate) delta: [S; N],
-    /// `n₁` from `e^{hM}·n₀ + h·φ₁(hM)·f`, a sum of non-negative terms.
-    pub(crate) direct: [S; N],
-    /// Species whose new amount should be taken from `direct`.
-    pub(crate) use_direct: [bool; N],
+/// Each reaction direction written as first order in one species:
+/// `(l, κ)` with rate `κ·n_l` (`l = N` for a direction that does not run),
+/// `[forward, reverse]` per reaction. For a first-order network `κ` is the
+/// rate constant ([`crate::Model`] builds it); the quasi-linear exponential
+/// of [`super::stiff`] freezes any network into this form.
+pub(crate) type Pseudo<S, const R: usize> = [[(usize, S); 2]; R];
+
+/// The matrix `M = K − d·I` of the network written as `pseudo`, with
+/// dilution `d` (1/s): each direction adds `±ν·κ` to column `l`.
+pub(crate) fn system_matrix<S: Scalar, const N: usize, const R: usize, const O: usize>(
+    model: &Model<S, N, R, O>,
+    pseudo: &Pseudo<S, R>,
+    d: S,
+) -> [[S; N]; N] {
+    let mut m = [[S::ZERO; N]; N];
+    for (i, row) in m.iter_mut().enumerate() {
+        row[i] = -d;
+    }
+    for (reaction, ps) in model.reactions.iter().zip(pseudo.iter()) {
+        for (&(l, kappa), sign) in ps.iter().zip([S::ONE, -S::ONE]) {
+            if l >= N {
+                continue;
+            }
+            for (row, &nu) in m.iter_mut().zip(reaction.nu.iter()) {
+                row[l] += sign * nu * kappa;
+            }
+        }
+    }
+    m
+}
+
+/// The residual `M·n + f` of the network written as `pseudo`, formed
+/// reaction by reaction: each reaction's net extent rate
+/// `κ_f·n_l − κ_r·n_m` is rounded once and given to every species by its
+/// stoichiometry, so a fast reversible reaction near equilibrium leaves
+/// only the rounding of its small net rate in the conserved totals, not
+/// that of its large gross rates.
+pub(crate) fn residual<S: Scalar, const N: usize, const R: usize, const O: usize>(
+    model: &Model<S, N, R, O>,
+    pseudo: &Pseudo<S, R>,
+    f: &[S; N],
+    d: S,
+    n: &[S; N],
+) -> [S; N] {
+    let mut r = [S::ZERO; N];
+    for i in 0..N {
+        r[i] = f[i] - d * n[i];
+    }
+    for (reaction, ps) in model.reactions.iter().zip(pseudo.iter()) {
+        let mut net = S::ZERO;
+        for (&(l, kappa), sign) in ps.iter().zip([S::ONE, -S::ONE]) {
+            if let Some(&nl) = n.get(l) {
+                net += sign * kappa * nl;
+            }
+        }
+        for (ri, &nu) in r.iter_mut().zip(reaction.nu.iter()) {
+            *ri += nu * net;
+        }
+    }
+    r
 }
 
 /// One exact step of `dn/dt = f + M·n` over `h` from `n0`, with at most
@@ -124,10 +175,8 @@ pub(crate) struct LinearStep<S, const N: usize> {
 /// `e^{hM}·n₀ + h·φ₁(hM)·f`, whose terms are all non-negative for the
 /// Metzler matrix of a first-order network.
 ///
-/// `r` is the residual `M·n₀ + f`, formed by the caller (the model forms it
-/// reaction by reaction, so that the net extent of a fast reversible
-/// reaction is rounded once and conservation holds to the rounding of the
-/// small net change, not of the large gross rates).
+/// `r` is the residual `M·n₀ + f`, formed by the caller (by [`residual`],
+/// reaction by reaction).
 #[inline(never)]
 pub(crate) fn phi_step<S: Scalar, const N: usize>(
     m: &[[S; N]; N],
@@ -136,7 +185,7 @@ pub(crate) fn phi_step<S: Scalar, const N: usize>(
     n0: &[S; N],
     h: S,
     max_squarings: u16,
-) -> Result<LinearStep<S, N>, Singular> {
+) -> Result<Advance<S, N>, Singular> {
     let r = *r;
     let mut a = *m;
     for row in a.iter_mut() {
@@ -153,7 +202,7 @@ pub(crate) fn phi_step<S: Scalar, const N: usize>(
             *x = -fi;
         }
         solve(&mut lhs, &mut n1, N)?;
-        let mut step = LinearStep {
+        let mut step = Advance {
             delta: [S::ZERO; N],
             direct: [S::ZERO; N],
             use_direct: [true; N],
@@ -215,7 +264,7 @@ pub(crate) fn phi_step<S: Scalar, const N: usize>(
         }
         e = mat_mul(&e, &e);
     }
-    let mut step = LinearStep {
+    let mut step = Advance {
         delta: [S::ZERO; N],
         direct: [S::ZERO; N],
         use_direct: [false; N],
@@ -236,7 +285,7 @@ pub(crate) fn phi_step<S: Scalar, const N: usize>(
     finite(step)
 }
 
-fn finite<S: Scalar, const N: usize>(step: LinearStep<S, N>) -> Result<LinearStep<S, N>, Singular> {
+fn finite<S: Scalar, const N: usize>(step: Advance<S, N>) -> Result<Advance<S, N>, Singular> {
     if step
         .delta
         .iter()

@@ -148,14 +148,7 @@ fn fill_draw_reference_solves_the_balance() {
     let at = [1.0, 10.0, 100.0, 600.0];
     for k in [3.0, 0.01] {
         for (q_in, q_out) in [(4e-3, 2e-3), (1e-3, 3e-3)] {
-            let fd = FillDraw {
-                v0: 2.0,
-                q_in,
-                q_out,
-                k,
-                feed: [STIFF_AF, 100.0],
-                start: [50.0, 200.0],
-            };
+            let fd = FillDraw::case(q_in, q_out, k);
             let f = |t: f64, n: &[f64; 2]| {
                 let d = q_out / fd.volume(t);
                 [

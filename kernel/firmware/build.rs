@@ -94,6 +94,26 @@ fn reference_run<S: holdup_kernel::Scalar>() -> Vec<[f64; 4]> {
     points
 }
 
+/// The stiff scenario in scalar `S`: `[V, c₀, c₁, c₂]` at every checkpoint.
+fn stiff_run<S: holdup_kernel::Scalar>() -> Vec<[f64; 4]> {
+    let mut v = stiff_vessel::<S>().expect("stiff vessel");
+    let mut points = Vec::new();
+    for n in 1..=STIFF_TICKS {
+        let u = reference::inputs_at::<S>(v.time_ms());
+        v.step(&u);
+        if n % STIFF_EVERY == 0 {
+            let c = v.concentrations();
+            points.push([
+                v.volume().to_f64(),
+                c[0].to_f64(),
+                c[1].to_f64(),
+                c[2].to_f64(),
+            ]);
+        }
+    }
+    points
+}
+
 /// The observed scenario's plant: the reference vessel in `f64` with the
 /// true flows (no meter bias, no noise).
 struct Plant {
@@ -243,8 +263,8 @@ fn f32_lit(x: f64) -> String {
     }
 }
 
-fn rows(name: &str, doc: &str, points: &[[f64; 4]]) -> String {
-    let mut s = format!("/// {doc}\npub const {name}: [[f32; 4]; REF_POINTS] = [\n");
+fn rows(name: &str, len: &str, doc: &str, points: &[[f64; 4]]) -> String {
+    let mut s = format!("/// {doc}\npub const {name}: [[f32; 4]; {len}] = [\n");
     for p in points {
         let _ = writeln!(
             s,
@@ -286,6 +306,7 @@ fn expected() -> String {
     assert_eq!(f64_points.len(), REF_POINTS);
     s.push_str(&rows(
         "REF_EXPECTED",
+        "REF_POINTS",
         "Reference scenario: `[V (m³), c₀, c₁, c₂ (mol/m³)]` every REF_EVERY \
          ticks, the host kernel in f64, rounded to f32.",
         &f64_points,
@@ -293,7 +314,27 @@ fn expected() -> String {
     s.push('\n');
     s.push_str(&rows(
         "REF_HOST_F32",
+        "REF_POINTS",
         "Reference scenario: the same run by the host kernel in f32 (information only).",
+        &f32_points,
+    ));
+    s.push('\n');
+
+    let f64_points = stiff_run::<f64>();
+    let f32_points = stiff_run::<f32>();
+    assert_eq!(f64_points.len(), STIFF_POINTS);
+    s.push_str(&rows(
+        "STIFF_EXPECTED",
+        "STIFF_POINTS",
+        "Stiff scenario: `[V (m³), c₀, c₁, c₂ (mol/m³)]` every STIFF_EVERY \
+         ticks, the host kernel in f64, rounded to f32.",
+        &f64_points,
+    ));
+    s.push('\n');
+    s.push_str(&rows(
+        "STIFF_HOST_F32",
+        "STIFF_POINTS",
+        "Stiff scenario: the same run by the host kernel in f32 (the target must match it bit for bit).",
         &f32_points,
     ));
     s.push('\n');
@@ -303,7 +344,7 @@ fn expected() -> String {
     let exact = flops::exact_tick();
     let mprk = flops::reference_tick();
     s.push_str(&exact.to_rust("FLOPS_EXACT", "the analytic scenario's tick (exact step)"));
-    s.push_str(&mprk.to_rust("FLOPS_REFERENCE", "the reference tick (MPRK22 split)"));
+    s.push_str(&mprk.to_rust("FLOPS_REFERENCE", "the reference tick (whole MPRK22)"));
     let obs = flops::observer_tick(&p.level_knots, &p.lab_values);
     s.push_str(&obs.to_rust(
         "FLOPS_OBSERVER",

@@ -105,6 +105,11 @@ pub fn exact_inputs<S: Scalar>() -> Inputs<S, 3, 1, 1> {
 /// general network's substepped path. Ticks measured.
 pub const STIFF_TICKS: u32 = 2 * 3600;
 
+/// Stiff scenario: a checkpoint every this many ticks (10 min).
+pub const STIFF_EVERY: u32 = 600;
+/// Stiff scenario: number of checkpoints.
+pub const STIFF_POINTS: usize = (STIFF_TICKS / STIFF_EVERY) as usize;
+
 /// Factor on the reference saponification rate constant.
 pub const STIFF_FACTOR: f64 = 1e4;
 

@@ -82,7 +82,11 @@ fn error_norm<S: Scalar, const N: usize>(c0: &[S; N], d1: &[S; N], d2: &[S; N], 
 }
 
 /// The network at concentrations `c` with rates `r` (per volume) frozen as
-/// first order in each direction's limiting reactant: `(l, ρ/c_l)`.
+/// first order in each direction's limiting reactant: `(l, ρ/c_l)`. Out of
+/// line, with [`limiting`] called rather than inlined into each of its
+/// `2R` directions (1 KiB of a gateway image): a stiff tick's cost, not the
+/// everyday tick's.
+#[inline(never)]
 fn frozen<S: Scalar, const N: usize, const R: usize, const O: usize>(
     model: &Model<S, N, R, O>,
     r: &[[S; 2]; R],
@@ -94,12 +98,22 @@ fn frozen<S: Scalar, const N: usize, const R: usize, const O: usize>(
             if !(rate > S::ZERO) {
                 continue;
             }
-            if let Some((l, _, cl)) = limiting(&reaction.nu, c, sign) {
+            if let Some((l, _, cl)) = limiting_out_of_line(&reaction.nu, c, sign) {
                 *slot = (l, rate / cl);
             }
         }
     }
     pseudo
+}
+
+/// [`limiting`], not inlined.
+#[inline(never)]
+fn limiting_out_of_line<S: Scalar, const N: usize>(
+    nu: &[S; N],
+    c: &[S; N],
+    sign: S,
+) -> Option<(usize, S, S)> {
+    limiting(nu, c, sign)
 }
 
 /// One stage: the exact solution over `tau` from `c0` of the network frozen

@@ -50,9 +50,10 @@ pub enum Error {
     /// A rate constant, activation energy or reference temperature is
     /// negative, NaN or infinite (reaction index).
     ReactionRateConstant(u8),
-    /// The exact integrator was requested for a network that is not linear
-    /// and diagonal (only first-order consumption of species that no reaction
-    /// produces is allowed).
+    /// The exact integrator was requested for a network that is not a
+    /// first-order network (every reaction direction must consume one
+    /// species at order 1 and depend on no other; see
+    /// [`crate::model::Network`]).
     ConfigExactNotApplicable,
     /// A reference integrator (`ReferenceRk4`, `ReferenceEuler`) was asked
     /// of a kernel built without the `reference-methods` feature.
@@ -164,7 +165,7 @@ impl Error {
                 "rate constant, activation energy and reference temperature must be finite and non-negative (temperature positive)"
             }
             Error::ConfigExactNotApplicable => {
-                "exact integrator needs a linear, uncoupled network (first-order consumption only, of species no reaction produces)"
+                "exact integrator needs a first-order network (each reaction direction consumes one species, at order 1, and depends on no other)"
             }
             Error::ConfigMethodUnavailable => {
                 "reference integrators are not in this build (kernel feature `reference-methods`)"

@@ -41,8 +41,10 @@
 //! Bounds: `exact` does `N` `expm1` and one `ln1p`; `linear` at most
 //! `m + 1 + 2·s_max` products of `N × N` matrices (`s_max` from
 //! [`crate::Model::max_squarings`]); `whole_step` two rate evaluations and
-//! two solves of at most `min(N, 2R)` unknowns; a stiff tick one rate
-//! evaluation more than that for each of at most `MAX_SUBSTEPS` substeps.
+//! two solves of at most `min(N, 2R)` unknowns; any other tick one rate
+//! evaluation and an assembly to find that out, then per substep (at most
+//! `MAX_SUBSTEPS`) one rate evaluation and two exponentials of the frozen
+//! network, each at most `m + 1 + 2·STAGE_SQUARINGS` products.
 //! No loop depends on input values beyond these bounds.
 //!
 //! Cost on the Cortex-M4F (kernel/firmware/measure.sh): the reference tick
@@ -675,7 +677,8 @@ mod tests {
         let y0 = [ca * v, cb * v];
         // 1 s: mild. 1000 s: 2h·k·c_A ≈ 10, stiff; 1e5 s: 50 residence
         // times in one tick. All see no error at the steady state and take
-        // one substep of two rate evaluations.
+        // one step: the whole MPRK22 (two rate evaluations) or one substep
+        // (the starting rates and one at the midpoint).
         for (h, evals_expected, substeps) in [(1.0, 2, 1), (1000.0, 2, 1), (1e5, 2, 1)] {
             let fr = frame(&model, h, v, q, [cf, 0.0]);
             let mut evals = 0u16;

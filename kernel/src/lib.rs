@@ -27,6 +27,13 @@
 //!   temperature (`R = 8.314462618 J/(mol·K)`).
 //! * **Units.** SI everywhere: m, m², m³, m³/s, mol, mol/m³, K, J/mol, s (see
 //!   [`units`]).
+//! * **Any tick, any speed of reaction.** A first-order network is stepped
+//!   by the exact solution of the held linear system; any other network by
+//!   MPRK22 when the tick is mild and by error-controlled substeps
+//!   otherwise. A steady state of the held inputs is a fixed point at any
+//!   tick, amounts never go negative, and the work of a tick is bounded by
+//!   numbers fixed at configuration ([`Model::max_squarings`],
+//!   [`Model::max_substeps`]).
 //!
 //! The equations are written out in [`model`]; what one tick does, in order,
 //! in [`vessel`]; the integrators and their properties in [`integrate`].

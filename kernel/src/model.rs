@@ -118,8 +118,8 @@ pub enum Method {
     /// conservative at any tick, second order, a steady state a fixed
     /// point. A mild tick is stepped whole (feed, dilution and reactions
     /// together); a stiff one, or one longer than a fraction of the
-    /// residence time, by substeps of an exponential MPRK22 under error
-    /// control, at most [`crate::integrate::stiff::MAX_SUBSTEPS`]. See
+    /// residence time, by error-controlled substeps of the quasi-linear
+    /// exponential, at most [`crate::integrate::stiff::MAX_SUBSTEPS`]. See
     /// [`crate::integrate`].
     Mprk22,
     /// Reference only: classical RK4. Loses positivity at large `k·h`;
@@ -610,8 +610,9 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
     }
 
     /// Worst-case substeps of one stiff tick of a general network:
-    /// [`crate::integrate::stiff::MAX_SUBSTEPS`], each two rate evaluations
-    /// and two Patankar solves.
+    /// [`crate::integrate::stiff::MAX_SUBSTEPS`], each one rate evaluation
+    /// and two matrix exponentials of at most
+    /// [`crate::integrate::stiff::STAGE_SQUARINGS`] doublings.
     pub fn max_substeps(&self) -> u16 {
         crate::integrate::stiff::MAX_SUBSTEPS
     }

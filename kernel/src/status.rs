@@ -134,8 +134,8 @@ pub enum MethodUsed {
     /// holdup, second order while it changes).
     Exponential,
     /// MPRK22 (modified Patankar–Runge–Kutta, second order): the whole tick
-    /// when it is mild, substeps of the exponential MPRK22 when it is stiff
-    /// ([`StepReport::substeps`]).
+    /// when it is mild, error-controlled substeps of the quasi-linear
+    /// exponential otherwise ([`StepReport::substeps`]).
     Mprk22,
     /// Reference: classical Runge–Kutta, fourth order (not positivity-preserving).
     ReferenceRk4,

@@ -3,7 +3,7 @@
 //!
 //! **The substep.** Each reaction direction is frozen as first order in its
 //! limiting reactant `l` (the species that weights it in the Patankar
-//! stages, [`super::limiting`]): `ρ = (ρ/c_l)·c_l`. With the transport
+//! stages, `integrate::limiting`): `ρ = (ρ/c_l)·c_l`. With the transport
 //! (mean dilution `ā = q_in·mean(1/V)` over the substep, forcing `ā·c_f`),
 //! the frozen system `dc/dt = A·c + ā·c_f` is a first-order network, and
 //! [`super::linear`] steps it exactly: stage 1 with `A` frozen at the
@@ -18,7 +18,7 @@
 //! * **conservative**: every column of `A` carries whole stoichiometric
 //!   vectors, so `wᵀA = −ā·wᵀ` for every linear invariant `w` and `w·c`
 //!   follows its exact transport; the residual is formed reaction by
-//!   reaction ([`super::linear::residual`]);
+//!   reaction (`linear::residual`);
 //! * **non-negative** where every direction has one reactant (`A` is then a
 //!   Metzler matrix and `e^{τA} ≥ 0`); a co-reactant, which `A` consumes in
 //!   proportion to the limiting one, is clipped at zero if a substep
@@ -30,7 +30,7 @@
 //! species' size (absolute below a millionth of the largest). The first
 //! substep is the whole tick when the state barely moves (a steady state:
 //! no error, one substep), otherwise sized so that its largest Patankar
-//! weight is [`FIRST_WEIGHT`]; then the usual controller
+//! weight is 0.2 (`FIRST_WEIGHT`); then the usual controller
 //! `τ ← τ·min(4, max(1/10, 0.9·√(tol/err)))` accepts or rejects. At most
 //! [`MAX_SUBSTEPS`] attempts per tick (accepted or rejected); when they
 //! run out, the last one takes the rest of the tick (still conservative
@@ -66,7 +66,7 @@ const FLOOR: f64 = 1e-6;
 
 /// Largest number of doublings in one stage. The controller keeps
 /// `‖τ·A‖` near its first substep's (a Patankar weight of
-/// [`FIRST_WEIGHT`]); a stage that would need more is inaccurate and
+/// `FIRST_WEIGHT`, 0.2); a stage that would need more is inaccurate and
 /// rejected by the error estimate.
 pub const STAGE_SQUARINGS: u16 = 40;
 

@@ -66,6 +66,7 @@ use crate::diagnostics::{ClosureMonitor, NisMonitor};
 use crate::geometry::{Geometry, Shape};
 use crate::model::VesselSpec;
 use crate::observer::{Observer, ObserverSpec, ObserverState};
+use crate::sensor::{Sensor, SensorState};
 use crate::storage::{Storage, StorageError};
 use crate::vessel::{Vessel, VesselState};
 use crate::{Error, Scalar};
@@ -73,7 +74,7 @@ use crate::{Error, Scalar};
 /// Magic number at the start of every checkpoint.
 pub const MAGIC: [u8; 4] = *b"HDCK";
 /// The format version written, and the only one read.
-pub const FORMAT_VERSION: u16 = 1;
+pub const FORMAT_VERSION: u16 = 2;
 /// Bytes of the header before the payload.
 pub const HEADER_LEN: usize = 28;
 /// State kind of a [`Vessel`] checkpoint.
@@ -84,6 +85,8 @@ pub const KIND_OBSERVER: u16 = 2;
 pub const KIND_CLOSURE: u16 = 3;
 /// State kind of a windowed-NIS monitor record.
 pub const KIND_NIS: u16 = 4;
+/// State kind of a whole [`Sensor`] checkpoint.
+pub const KIND_SENSOR: u16 = 5;
 
 /// Something whose state can be checkpointed: it holds the configuration
 /// (which gives the fingerprint and checks a decoded state) and the state.
@@ -251,6 +254,52 @@ where
             L,
         ];
         fingerprint_of(&sizes, self.vessel().model(), self.spec())
+    }
+
+    fn snapshot(&self) -> Self::State {
+        self.state()
+    }
+
+    fn check(&self, state: &Self::State) -> Result<(), Error> {
+        self.check_state(state)
+    }
+
+    fn install(&mut self, state: &Self::State) -> Result<(), Error> {
+        self.restore_state(state)
+    }
+}
+
+impl<
+        S,
+        const N: usize,
+        const R: usize,
+        const O: usize,
+        const I: usize,
+        const D: usize,
+        const L: usize,
+    > Checkpoint for Sensor<S, N, R, O, I, D, L>
+where
+    S: Scalar + Serialize + DeserializeOwned,
+{
+    type State = SensorState<S, N, I, O, D, L>;
+    const KIND: u16 = KIND_SENSOR;
+
+    fn fingerprint(&self) -> Result<u32, Error> {
+        let sizes = [
+            usize::from(Self::KIND),
+            core::mem::size_of::<S>(),
+            N,
+            R,
+            O,
+            I,
+            D,
+            L,
+        ];
+        let model = self.vessel().model();
+        match self.observer() {
+            Some(o) => fingerprint_of(&sizes, model, &(o.spec(), self.spec())),
+            None => fingerprint_of(&sizes, model, self.spec()),
+        }
     }
 
     fn snapshot(&self) -> Self::State {

@@ -92,6 +92,12 @@ pub enum Error {
     SignalStuck,
     /// A probability is not strictly between 0 and 1.
     ConfigProbability,
+    /// A sensor's balance-closure test needs a level channel and a flow
+    /// meter on every outlet.
+    SensorClosure,
+    /// A lab result or analyser reading was given to a sensor without an
+    /// observer (open loop): it cannot be fused.
+    SensorNotObserved,
     /// Configuration bytes are not a valid postcard encoding of the
     /// specification (truncated, corrupted, or a list longer than its
     /// capacity).
@@ -192,6 +198,12 @@ impl Error {
             }
             Error::SignalRate => "signal maximum rate of change must be positive",
             Error::ConfigProbability => "probability must be strictly between 0 and 1",
+            Error::SensorClosure => {
+                "balance-closure test needs a level transmitter and a flow meter on every outlet"
+            }
+            Error::SensorNotObserved => {
+                "the sensor has no estimator: lab results and analyser readings cannot be fused"
+            }
             Error::ConfigDecode => {
                 "configuration bytes are not a valid encoding of the specification (truncated, corrupted or over capacity)"
             }

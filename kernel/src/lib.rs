@@ -155,6 +155,7 @@ pub mod model;
 pub mod observer;
 pub mod reference;
 pub mod scalar;
+pub mod sensor;
 #[cfg(feature = "serde")]
 mod serde_arrays;
 pub mod signal;
@@ -168,6 +169,9 @@ pub use geometry::{Bottom, Geometry, Shape};
 pub use model::{Inputs, Kinetics, Method, Model, Network, Outlet, ReactionSpec, VesselSpec};
 pub use observer::{BiasTarget, Observer, ObserverSpec, ObserverState, Update};
 pub use scalar::{Compensated, Scalar};
+pub use sensor::{
+    Channel, ChannelSpecs, ClosureSpec, Estimate, Readings, Sensor, SensorReport, SensorSpec,
+};
 pub use signal::{Quality, Reading, Signal, SignalFlags, SignalKind, SignalSpec, StuckSpec};
 pub use status::{MethodUsed, StatusFlags, StepReport};
 pub use vessel::{InitialState, Vessel, VesselState};

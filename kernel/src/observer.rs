@@ -155,6 +155,8 @@ pub struct ObserverCounters {
     pub covariance_guarded: u32,
     /// Ticks where the covariance transition fell back to `I + hF`.
     pub transition_fallbacks: u32,
+    /// Re-seeds of the holdup from the level ([`Observer::reseed_from_level`]).
+    pub reseeds: u32,
 }
 
 /// A lab sample waiting for its result.
@@ -879,6 +881,101 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
             Update::Skipped => {}
         }
         out
+    }
+
+    /// Re-seed the holdup from a level reading `z` (m) after the filter has
+    /// locked itself out: its holdup is so far off (a flow meter that read
+    /// wrong for a while, an unmetered drain) that the innovation gate
+    /// rejects every level reading that would correct it. The caller
+    /// decides when (the sensor does it after a run of rejected level
+    /// readings); this is the mechanism.
+    ///
+    /// * The holdup becomes `V(z)`, with variance `(A(z)·σ_z)²`, uncorrelated
+    ///   with everything else.
+    /// * The concentrations are kept (the level says nothing about them):
+    ///   the amounts become `cᵢ·V(z)`. Their covariance (carried from the
+    ///   amounts' by `c = n/V` to first order) is widened by each species'
+    ///   initial uncertainty, `(σ_n,0/V(z))²`, since whatever moved the
+    ///   holdup also moved what came in and out.
+    /// * The meter biases keep their estimates; each variance becomes at
+    ///   least its initial one (a wrong bias may be what drove the holdup
+    ///   off).
+    /// * Pending lab samples are dropped (counted as expired): their stored
+    ///   sensitivities refer to the state before the re-seed.
+    ///
+    /// Returns `false` (nothing changed) if `z` is not finite, or gives no
+    /// positive holdup or cross-section. `O(D²)`, no solve.
+    pub fn reseed_from_level(&mut self, z: S) -> bool {
+        let geometry = self.vessel.model().geometry();
+        let v_new = geometry.volume_at(z);
+        let area = geometry.area_at(z);
+        let v_old = self.vessel.volume();
+        if !z.is_finite() || !(v_new > S::ZERO) || !(area > S::ZERO) || !(v_old > S::ZERO) {
+            return false;
+        }
+        let n_old = self.vessel.amounts();
+        let mut c = [S::ZERO; N];
+        for (ci, ni) in c.iter_mut().zip(n_old.iter()) {
+            *ci = *ni / v_old;
+        }
+        // Rows of J_c = ∂c/∂x: c_i = n_i/V.
+        let p = &self.p;
+        let cov_c = |i: usize, j: usize| {
+            let (ai, bi) = (-c[i] / v_old, S::ONE / v_old);
+            let (aj, bj) = (-c[j] / v_old, S::ONE / v_old);
+            ai * aj * p[0][0]
+                + ai * bj * p[0][1 + j]
+                + bi * aj * p[1 + i][0]
+                + bi * bj * p[1 + i][1 + j]
+        };
+        let cov_cb = |i: usize, b: usize| (-c[i] / v_old) * p[0][b] + p[1 + i][b] / v_old;
+        let sigma_v = area * self.spec.level_sigma;
+        let var_v = sigma_v * sigma_v;
+        let mut q = zeros::<S, D>();
+        q[0][0] = var_v;
+        for i in 0..N {
+            q[0][1 + i] = c[i] * var_v;
+            q[1 + i][0] = c[i] * var_v;
+            for j in 0..N {
+                let mut pc = cov_c(i, j);
+                if i == j {
+                    let widen = self.spec.initial_amount_sigma[i] / v_new;
+                    pc += widen * widen;
+                }
+                q[1 + i][1 + j] = c[i] * c[j] * var_v + v_new * v_new * pc;
+            }
+            for b in 1 + N..D {
+                let x = v_new * cov_cb(i, b);
+                q[1 + i][b] = x;
+                q[b][1 + i] = x;
+            }
+        }
+        let floor = self.spec.initial_bias_sigma * self.spec.initial_bias_sigma;
+        for b in 1 + N..D {
+            for b2 in 1 + N..D {
+                q[b][b2] = p[b][b2];
+            }
+            q[b][b] = q[b][b].max(floor);
+        }
+        let mut n_new = [S::ZERO; N];
+        for (ni, ci) in n_new.iter_mut().zip(c.iter()) {
+            *ni = *ci * v_new;
+        }
+        if !q.iter().flatten().all(|x| x.is_finite()) || !n_new.iter().all(|x| x.is_finite()) {
+            return false;
+        }
+        // Clamping here only keeps V within the capacity (V(z) is already).
+        let _ = self.vessel.set_state(v_new, &n_new);
+        symmetrize(&mut q);
+        if !make_positive_definite(&mut q) {
+            self.counters.covariance_guarded = self.counters.covariance_guarded.saturating_add(1);
+        }
+        self.p = q;
+        let dropped = u32::try_from(self.pending.len()).unwrap_or(u32::MAX);
+        self.pending.clear();
+        self.counters.lab_expired = self.counters.lab_expired.saturating_add(dropped);
+        self.counters.reseeds = self.counters.reseeds.saturating_add(1);
+        true
     }
 
     /// Measurement row of the concentration of `species` at the current

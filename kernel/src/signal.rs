@@ -131,6 +131,7 @@ impl Ne43 {
 
 /// How the raw input is turned into engineering units.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub enum SignalKind<S> {
     /// A 4–20 mA loop: the raw value is the current in mA; `lo` is the
     /// engineering value at 4 mA, `hi` at 20 mA (`hi > lo`).
@@ -159,6 +160,7 @@ pub enum SignalKind<S> {
 
 /// Flat-line (stuck value) detection.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub struct StuckSpec<S> {
     /// Longest time the value may stay flat before it is called stuck, ms
     /// (at least 1).
@@ -170,6 +172,7 @@ pub struct StuckSpec<S> {
 
 /// Raw description of one input signal; checked by [`Signal::new`].
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub struct SignalSpec<S> {
     /// Scaling from the raw input to engineering units.
     pub kind: SignalKind<S>,
@@ -198,6 +201,7 @@ pub struct SignalSpec<S> {
 /// to be unified.)
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, PartialOrd, Ord, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub enum Quality {
     /// Measured, and every check passed.
     #[default]
@@ -238,6 +242,7 @@ impl Quality {
 /// logs).
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub struct SignalFlags(u16);
 
 impl SignalFlags {
@@ -307,6 +312,7 @@ crate::status::flag_set_ops!(SignalFlags, u16);
 /// One conditioned sample: the value to use, how far to trust it, and why.
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub struct Reading<S> {
     /// Engineering value to use (always finite).
     pub value: S,
@@ -318,6 +324,7 @@ pub struct Reading<S> {
 
 /// A value and the time it was seen.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 struct Sample<S> {
     value: S,
     at: Millis,
@@ -326,6 +333,7 @@ struct Sample<S> {
 /// One conditioned input: a validated [`SignalSpec`] and the little state its
 /// checks need.
 #[derive(Clone, Copy, Debug, PartialEq)]
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 pub struct Signal<S> {
     spec: SignalSpec<S>,
     /// Time and result of the last accepted update.
@@ -443,6 +451,18 @@ impl<S: Scalar> Signal<S> {
     /// The last `Good` value and its time, ms.
     pub fn last_good(&self) -> Option<(S, Millis)> {
         self.good.map(|g| (g.value, g.at))
+    }
+
+    /// True when the state (as decoded from a checkpoint) holds only finite
+    /// values and readings within what [`Signal::update`] can return.
+    #[cfg(feature = "serde")]
+    pub(crate) fn state_ok(&self) -> bool {
+        let fin = |x: Option<Sample<S>>| x.is_none_or(|s| s.value.is_finite());
+        self.last.is_none_or(|(_, r)| r.value.is_finite())
+            && fin(self.good)
+            && fin(self.accepted)
+            && fin(self.flat)
+            && fin(self.spike)
     }
 
     /// Condition one raw sample taken at `now` (ms). Never fails; see the

@@ -1,7 +1,7 @@
 //! Model mismatch: chi-square bounds and the windowed NIS test.
 
 use crate::observer::Update;
-use crate::{Error, Scalar};
+use crate::{Compensated, Error, Scalar};
 
 // ---------------------------------------------------------------------------
 // Chi-square bounds
@@ -173,12 +173,12 @@ impl<S: Scalar> ChiSquareBounds<S> {
 // NIS
 // ---------------------------------------------------------------------------
 
-/// The consistency of an observer's innovations over the window.
+/// The consistency of an observer's innovations over the last closed window.
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Hash)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
 pub enum NisState {
-    /// Fewer samples than the window holds: not yet tested.
+    /// No window has closed yet (since construction or [`NisMonitor::reset`]).
     #[default]
     Filling,
     /// Windowed NIS within the chi-square bounds.
@@ -208,31 +208,28 @@ pub struct NisReport<S> {
     pub upper: S,
 }
 
-/// Model-mismatch monitor: the sum of the last `W` normalised innovation
-/// squared values against two-sided chi-square bounds.
+/// Model-mismatch monitor: the sum of `W` consecutive normalised innovation
+/// squared values against two-sided chi-square bounds, over **disjoint**
+/// windows.
 ///
-/// Tested at every update once the window is full (a sliding window: each
-/// test wrongly flags with probability `1 − P` when the filter is
-/// consistent, but consecutive tests share `W − 1` samples, so flags come in
-/// runs). Work per update is `O(W)` (the sum is recomputed, so rounding does
-/// not accumulate). A NaN, infinite or negative NIS, or a sample with zero
-/// degrees of freedom, is rejected (counted) and leaves the window as it was.
-#[cfg_attr(
-    feature = "serde",
-    derive(serde::Serialize, serde::Deserialize),
-    serde(bound(
-        serialize = "S: serde::Serialize",
-        deserialize = "S: serde::Deserialize<'de> + Copy + Default"
-    ))
-)]
+/// Each window of `W` accepted samples is tested once, when it closes, and
+/// its result stands until the next window closes. Disjoint windows are
+/// independent when the filter is consistent, so each test wrongly flags
+/// with probability exactly `1 − P`: the expected share of flagged time is
+/// `1 − P` (a sliding window tested at every sample flags about as often,
+/// but in long runs, and costs `O(W)` per sample). Work per update is
+/// `O(1)`: a compensated running sum. A NaN, infinite or negative NIS, or a
+/// sample with zero degrees of freedom, is rejected (counted) and leaves the
+/// window as it was.
+#[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct NisMonitor<S, const W: usize> {
     bounds: ChiSquareBounds<S>,
-    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
-    values: [S; W],
-    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
-    dofs: [u8; W],
-    next: usize,
+    /// Sum of the open window's values.
+    sum: Compensated<S>,
+    /// Degrees of freedom in the open window.
+    dof: u32,
+    /// Samples in the open window.
     filled: usize,
     rejected: u32,
     last: NisReport<S>,
@@ -247,8 +244,8 @@ impl<S: Scalar, const W: usize> NisMonitor<S, W> {
 
     #[cfg(feature = "serde")]
     /// True when `state` (a decoded checkpoint) has this monitor's bounds
-    /// and a possible window: finite non-negative values, degrees of
-    /// freedom at least 1 where filled, indices in range.
+    /// and a possible open window: a finite non-negative sum, at least one
+    /// degree of freedom per sample, fewer samples than the window.
     pub(crate) fn accepts(&self, state: &Self) -> bool {
         let bits = |a: S| a.to_f64().to_bits();
         let same_bounds = bits(self.bounds.probability) == bits(state.bounds.probability)
@@ -265,12 +262,14 @@ impl<S: Scalar, const W: usize> NisMonitor<S, W> {
                 .iter()
                 .zip(state.bounds.upper.iter())
                 .all(|(a, b)| bits(*a) == bits(*b));
-        let filled = state.filled.min(W);
+        let sum = state.sum.value();
+        let filled = u32::try_from(state.filled).unwrap_or(u32::MAX);
         same_bounds
-            && state.next < W.max(1)
-            && state.filled <= W
-            && state.values.iter().all(|v| v.is_finite() && *v >= S::ZERO)
-            && state.dofs.iter().take(filled).all(|d| *d >= 1)
+            && state.filled < W.max(1)
+            && sum.is_finite()
+            && sum >= S::ZERO
+            && state.dof >= filled
+            && state.dof <= filled.saturating_mul(u32::from(u8::MAX))
             && state.last.sum.is_finite()
     }
 
@@ -284,9 +283,8 @@ impl<S: Scalar, const W: usize> NisMonitor<S, W> {
         }
         Ok(Self {
             bounds,
-            values: [S::ZERO; W],
-            dofs: [0; W],
-            next: 0,
+            sum: Compensated::new(S::ZERO),
+            dof: 0,
             filled: 0,
             rejected: 0,
             last: NisReport {
@@ -300,31 +298,24 @@ impl<S: Scalar, const W: usize> NisMonitor<S, W> {
     }
 
     /// Add one NIS value `νᵀS⁻¹ν` with its degrees of freedom (the
-    /// innovation's dimension) and test the window.
+    /// innovation's dimension); when this closes the window, test it.
+    /// Returns the result of the last closed window.
     pub fn update(&mut self, nis: S, dof: u8) -> NisReport<S> {
         if !nis.is_finite() || nis < S::ZERO || dof == 0 {
             self.rejected = self.rejected.saturating_add(1);
             return self.last;
         }
-        if let (Some(v), Some(d)) = (self.values.get_mut(self.next), self.dofs.get_mut(self.next)) {
-            *v = nis;
-            *d = dof;
-        }
-        self.next = if self.next + 1 >= W { 0 } else { self.next + 1 };
+        self.sum.add(nis);
+        self.dof = self.dof.saturating_add(u32::from(dof));
+        self.filled += 1;
         if self.filled < W {
-            self.filled += 1;
+            return self.last;
         }
-        let mut sum = S::ZERO;
-        let mut total: u32 = 0;
-        for (v, d) in self.values.iter().zip(self.dofs.iter()).take(self.filled) {
-            sum += *v;
-            total = total.saturating_add(u32::from(*d));
-        }
+        let sum = self.sum.value();
+        let total = self.dof;
         let lower = self.bounds.lower(total);
         let upper = self.bounds.upper(total);
-        let state = if self.filled < W {
-            NisState::Filling
-        } else if sum > upper {
+        let state = if sum > upper {
             NisState::Overconfident
         } else if sum < lower {
             NisState::TooCautious
@@ -338,6 +329,9 @@ impl<S: Scalar, const W: usize> NisMonitor<S, W> {
             lower,
             upper,
         };
+        self.sum.set(S::ZERO);
+        self.dof = 0;
+        self.filled = 0;
         self.last
     }
 
@@ -375,7 +369,8 @@ impl<S: Scalar, const W: usize> NisMonitor<S, W> {
 
     /// Empty the window (state back to [`NisState::Filling`]).
     pub fn reset(&mut self) {
-        self.next = 0;
+        self.sum.set(S::ZERO);
+        self.dof = 0;
         self.filled = 0;
         self.last.state = NisState::Filling;
         self.last.sum = S::ZERO;

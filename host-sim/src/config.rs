@@ -23,9 +23,9 @@ use toml::de::{DeTable, DeValue};
 use toml::Spanned;
 
 use crate::plant::{
-    limits, Analyser, BiasMeter, Estimator, Initial, Inlet, Interpolation, Kinetics, LogFormat,
-    LogOptions, Outlet, OutletKind, Plant, Reaction, ScalarKind, Signal, Species, TagOptions,
-    TimeFormat,
+    limits, Analyser, BiasMeter, Conditioning, Estimator, Initial, Inlet, Interpolation, Kinetics,
+    LogFormat, LogOptions, Outlet, OutletKind, Plant, Reaction, ScalarKind, Signal, Species,
+    TagOptions, TimeFormat,
 };
 use crate::units::{self, Kind, ToSi, UnitError};
 
@@ -150,7 +150,16 @@ const ANALYSER_KEYS: &[&str] = &["species", "reading", "sigma", "cycle"];
 const REVERSE_KEYS: &[&str] = &["rate_constant", "activation_energy", "orders"];
 const INITIAL_KEYS: &[&str] = &["volume", "level", "concentrations", "temperature"];
 const LOG_KEYS: &[&str] = &["format", "time", "time_column", "max_age"];
-const TAG_KEYS: &[&str] = &["interpolation", "max_age"];
+const TAG_KEYS: &[&str] = &[
+    "interpolation",
+    "max_age",
+    "min",
+    "max",
+    "max_rate",
+    "stuck",
+    "stuck_tolerance",
+    "hold",
+];
 const RATE_CONSTANT_KEYS: &[&str] = &["value", "unit"];
 const ESTIMATOR_KEYS: &[&str] = &[
     "level_sigma",
@@ -1141,7 +1150,8 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
             tag: tag.clone(),
             interpolation: Interpolation::Linear,
             max_age_ms: log.max_age_ms,
-            non_negative: *flow,
+            flow: *flow,
+            conditioning: Conditioning::default(),
         })
         .collect();
     if let Some(ts) = section(root, "tags")? {
@@ -1193,6 +1203,7 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
                 }
                 options.max_age_ms = ms;
             }
+            options.conditioning = read_conditioning(&t)?;
         }
     }
 
@@ -1233,6 +1244,53 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
         log,
         estimator,
     })
+}
+
+/// The conditioning keys of `[tags."…"]`: numbers in the tag's own unit.
+fn read_conditioning(t: &Tbl<'_>) -> R<Conditioning> {
+    let mut c = Conditioning {
+        min: t.number("min")?.map(|(x, _)| x),
+        max: t.number("max")?.map(|(x, _)| x),
+        ..Conditioning::default()
+    };
+    if let (Some(lo), Some(hi)) = (c.min, c.max) {
+        if hi <= lo {
+            return Err(t.err(
+                t.key_at("max"),
+                "max",
+                format!("must be above min ({lo}), got {hi}"),
+            ));
+        }
+    }
+    if let Some((r, at)) = t.number("max_rate")? {
+        if r <= 0.0 {
+            return Err(t.err(at, "max_rate", format!("must be positive, got {r}")));
+        }
+        c.max_rate_per_s = Some(r);
+    }
+    if let Some((ms, at)) = t.duration("stuck")? {
+        if ms == 0 {
+            return Err(t.err(at, "stuck", "must be longer than 0 ms"));
+        }
+        c.stuck_ms = Some(ms);
+    }
+    if let Some((x, at)) = t.number("stuck_tolerance")? {
+        if x < 0.0 {
+            return Err(t.err(
+                at,
+                "stuck_tolerance",
+                format!("must not be negative, got {x}"),
+            ));
+        }
+        if c.stuck_ms.is_none() {
+            return Err(t.err(at, "stuck_tolerance", "needs stuck (the flat duration)"));
+        }
+        c.stuck_tolerance = x;
+    }
+    if let Some((ms, _)) = t.duration("hold")? {
+        c.hold_ms = ms;
+    }
+    Ok(c)
 }
 
 /// `[[analyser]]`: an online analyser of one species.
@@ -2600,14 +2658,7 @@ sigma = { value = 0.004, unit = "mol/L" }
         let tags: Vec<(&str, Interpolation, u64, bool)> = p
             .tags
             .iter()
-            .map(|t| {
-                (
-                    t.tag.as_str(),
-                    t.interpolation,
-                    t.max_age_ms,
-                    t.non_negative,
-                )
-            })
+            .map(|t| (t.tag.as_str(), t.interpolation, t.max_age_ms, t.flow))
             .collect();
         assert_eq!(
             tags,

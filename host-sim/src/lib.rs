@@ -3,14 +3,13 @@
 //!
 //! Layers, in the order data flows: [`config`] (TOML → [`plant::Plant`], with
 //! [`units`]), [`log`] (streaming CSV → resampled tag values), [`lab`] (lab
-//! results), [`to_kernel`] (plant → kernel types), [`correct`] (the observer
-//! with its lab schedule), [`replay`] (the tick loop,
-//! estimates, summary, with [`digits`] for the figures it writes),
+//! results), [`to_kernel`] (plant → kernel types), [`replay`] (sources →
+//! the kernel's sensor → sinks: estimates, summary, plots, with [`digits`]
+//! for the figures it writes),
 //! [`plot`] (SVG figures); [`demo`] generates an
 //! invented plant's files; [`verify`] holds the analytic cases.
 
 pub mod config;
-pub mod correct;
 pub mod demo;
 pub mod digits;
 pub mod lab;

@@ -165,8 +165,46 @@ pub struct TagOptions {
     pub interpolation: Interpolation,
     /// Age after which a value with no newer point is stale, ms.
     pub max_age_ms: u64,
-    /// True for flows (a negative value is clamped to zero and counted).
-    pub non_negative: bool,
+    /// True if some signal reading it is a flow.
+    pub flow: bool,
+    /// Range, rate, stuck and hold checks, in the tag's own unit.
+    pub conditioning: Conditioning,
+}
+
+/// Default time the last good value of a tag stands in for rejected or
+/// missing ones, ms.
+pub const DEFAULT_HOLD_MS: u64 = 600_000;
+
+/// A tag's conditioning (`[tags."…"]` `min`, `max`, `max_rate`, `stuck`,
+/// `stuck_tolerance`, `hold`), numbers in the tag's own unit. Unset limits
+/// take the defaults of the signal's role (see `replay::assemble`).
+#[derive(Clone, Debug, PartialEq)]
+pub struct Conditioning {
+    /// Lowest valid value.
+    pub min: Option<f64>,
+    /// Highest valid value.
+    pub max: Option<f64>,
+    /// Largest plausible change per second.
+    pub max_rate_per_s: Option<f64>,
+    /// A value flat for longer than this is stuck, ms.
+    pub stuck_ms: Option<u64>,
+    /// Largest change still counted as flat.
+    pub stuck_tolerance: f64,
+    /// How long the last good value stands in, ms.
+    pub hold_ms: u64,
+}
+
+impl Default for Conditioning {
+    fn default() -> Self {
+        Self {
+            min: None,
+            max: None,
+            max_rate_per_s: None,
+            stuck_ms: None,
+            stuck_tolerance: 0.0,
+            hold_ms: DEFAULT_HOLD_MS,
+        }
+    }
 }
 
 /// Log layout.

@@ -96,8 +96,8 @@ pub struct ClosureSpec<S> {
 pub struct SensorSpec<S, const N: usize, const I: usize, const O: usize> {
     /// The conditioning of each input.
     pub channels: ChannelSpecs<S, N, I, O>,
-    /// The balance-closure test; needs a level channel and a flow meter on
-    /// every outlet.
+    /// The balance-closure test; needs a level channel and no computed
+    /// outlet (orifice, weir): every outflow must be metered.
     pub closure: Option<ClosureSpec<S>>,
     /// Probability of the two-sided NIS bounds (for example 0.999: a
     /// consistent filter's window is flagged one time in a thousand).
@@ -249,7 +249,11 @@ impl<
         let channels = Channels::new(&spec.channels)?;
         let nis = NisMonitor::new(ChiSquareBounds::new(spec.nis_probability)?)?;
         if let Some(c) = &spec.closure {
-            if !channels.has_level() || !(0..O).all(|k| channels.outlet_metered(k)) {
+            let model = match &core {
+                Core::Open(v) => v.model(),
+                Core::Observed(o) => o.vessel().model(),
+            };
+            if !channels.has_level() || model.has_computed_outlets {
                 return Err(Error::SensorClosure);
             }
             if !c.level_sigma.is_finite() || !c.flow_sigma.is_finite() {

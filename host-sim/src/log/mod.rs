@@ -37,8 +37,9 @@
 //! is `i64` milliseconds since the Unix epoch.
 //!
 //! A value cell that is empty, `NaN`, infinite or not a number is a missing
-//! value of that tag at that row (counted). A negative value of a
-//! `non_negative` tag is clamped to 0 (counted, raw value kept in the list).
+//! value of that tag at that row (counted). Every other value is stored as
+//! logged: range checks and the clamping of negative flows are the
+//! sensor's conditioning (`holdup_kernel::signal`), not the reader's.
 //!
 //! # Resampling
 //!
@@ -145,7 +146,6 @@ struct FlatRun {
 #[derive(Debug)]
 struct TagState {
     linear: bool,
-    non_negative: bool,
     /// Maximum age, ms (saturated to `i64::MAX`).
     max_age: i64,
     /// Last stored point at or before the last sample time.
@@ -295,7 +295,6 @@ impl LogReader {
             .iter()
             .map(|t| TagState {
                 linear: t.interpolation == Interpolation::Linear,
-                non_negative: t.non_negative,
                 max_age: i64::try_from(t.max_age_ms).unwrap_or(i64::MAX),
                 prev: None,
                 queue: VecDeque::new(),
@@ -691,16 +690,8 @@ impl LogReader {
         let (Some(s), Some(ts)) = (self.tags.get_mut(k), self.stats.tags.get_mut(k)) else {
             return Ok(());
         };
-        let mut v = raw;
         stats::close_run(&mut ts.open_missing, &mut ts.missing_runs);
-        if s.non_negative && raw < 0.0 {
-            ts.clamped.push(line, Some(t), Some(raw), String::new);
-            stats::extend_run(&mut ts.open_clamped, t, line);
-            v = 0.0;
-        } else {
-            stats::close_run(&mut ts.open_clamped, &mut ts.clamped_runs);
-        }
-        let point = Point { t, v, line };
+        let point = Point { t, v: raw, line };
         // Flat lines: analog (linear) tags only, a discrete signal is meant
         // to stay put. They follow the raw value (a transmitter stuck below
         // zero is stuck all the same).
@@ -772,7 +763,6 @@ impl LogReader {
                 close_flat(&run, self.flat_line_ms, ts);
             }
             stats::close_run(&mut ts.open_missing, &mut ts.missing_runs);
-            stats::close_run(&mut ts.open_clamped, &mut ts.clamped_runs);
         }
     }
 }

@@ -123,8 +123,6 @@ pub struct TagStats {
     pub missing: FaultList,
     /// Points replaced by a later row at the same time (last write wins).
     pub duplicates: FaultList,
-    /// Negative values of a non-negative tag, clamped to 0 (raw value kept).
-    pub clamped: FaultList,
     /// Long format: points of bad quality, rejected.
     pub bad_quality: FaultList,
     /// Long format: points of uncertain (or unrecognised) quality, used.
@@ -138,15 +136,11 @@ pub struct TagStats {
     /// Runs of consecutive rows where this tag's value was missing (from the
     /// first to the last missing row of the run), for marking on plots.
     pub missing_runs: WindowList,
-    /// Runs of consecutive negative values clamped to zero.
-    pub clamped_runs: WindowList,
     /// States returned by `sample` (`ticks.stale` is the stale-tick count).
     pub ticks: StateTicks,
     /// The missing-value run still open (closed by the next valid value or
     /// the end of the log).
     pub(crate) open_missing: Option<Window>,
-    /// The clamped run still open.
-    pub(crate) open_clamped: Option<Window>,
 }
 
 /// Extend the open run `open` with a row at `t`, `line`.
@@ -242,12 +236,6 @@ impl LogStats {
                     .iter()
                     .map(|w| (w.start, w.end, "missing values")),
             );
-            out.extend(
-                t.clamped_runs
-                    .first
-                    .iter()
-                    .map(|w| (w.start, w.end, "negative values clamped")),
-            );
         }
         out.sort_unstable();
         out.dedup();
@@ -319,11 +307,6 @@ impl LogStats {
                     "points replaced by later duplicates",
                 ),
                 (
-                    &t.clamped,
-                    "negative value clamped to 0",
-                    "negative values clamped to 0",
-                ),
-                (
                     &t.bad_quality,
                     "bad-quality point rejected",
                     "bad-quality points rejected",
@@ -357,12 +340,6 @@ impl LogStats {
                 (
                     &t.missing_runs,
                     "of missing values".to_string(),
-                    "run",
-                    "runs",
-                ),
-                (
-                    &t.clamped_runs,
-                    "of negative values clamped to zero".to_string(),
                     "run",
                     "runs",
                 ),
@@ -442,10 +419,10 @@ impl LogStats {
         let tags: Vec<_> = self.tags.iter().map(|t| json!({
             "tag": t.tag, "max_age_ms": t.max_age_ms, "points": t.points,
             "first_time": t.first_time.map(format_ms), "last_time": t.last_time.map(format_ms),
-            "missing": faults(&t.missing), "duplicates": faults(&t.duplicates), "clamped": faults(&t.clamped),
+            "missing": faults(&t.missing), "duplicates": faults(&t.duplicates), 
             "bad_quality": faults(&t.bad_quality), "uncertain_quality": faults(&t.uncertain_quality),
             "gaps": windows(&t.gaps), "flat_lines": windows(&t.flat_lines),
-            "missing_runs": windows(&t.missing_runs), "clamped_runs": windows(&t.clamped_runs),
+            "missing_runs": windows(&t.missing_runs), 
             "ticks": {"exact": t.ticks.exact, "interpolated": t.ticks.interpolated, "held": t.ticks.held,
                       "stale": t.ticks.stale, "missing": t.ticks.missing},
         })).collect();

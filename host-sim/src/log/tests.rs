@@ -17,13 +17,14 @@ fn tag(name: &str, interpolation: Interpolation, max_age_min: u64) -> TagOptions
         tag: name.into(),
         interpolation,
         max_age_ms: max_age_min * 60_000,
-        non_negative: false,
+        flow: false,
+        conditioning: Default::default(),
     }
 }
 
 fn flow(name: &str, max_age_min: u64) -> TagOptions {
     TagOptions {
-        non_negative: true,
+        flow: true,
         ..tag(name, Interpolation::Linear, max_age_min)
     }
 }
@@ -617,8 +618,9 @@ fn every_wide_fault_is_counted_at_its_line() {
     );
     // Empty TI-301 cell at minute 12: interpolated between equal values.
     assert_eq!(samples[12][1], s(25.0, Interpolated));
-    // Negative flow clamped to 0; duplicate row: the later value wins.
-    assert_eq!(samples[15][0], s(0.0, Exact));
+    // A negative flow is stored as logged (the sensor conditions it);
+    // duplicate row: the later value wins.
+    assert_eq!(samples[15][0], s(-0.4, Exact));
     assert_eq!(samples[21][0], s(99.0, Exact));
     // The 20-minute gap: held to minute 55 (10 min after 45), stale after.
     assert_eq!(samples[55][0], s(10.0 + 45.0 * 0.5, Held));
@@ -641,8 +643,6 @@ fn every_wide_fault_is_counted_at_its_line() {
     assert_eq!(fi.missing.first[0].time, Some(T0 + 5 * MIN));
     assert_eq!(lines_of(&ti.missing), [line(12)]);
     assert_eq!(ti.missing.first[0].detail, "empty");
-    assert_eq!(lines_of(&fi.clamped), [line(15)]);
-    assert_eq!(fi.clamped.first[0].value, Some(-0.4));
     assert_eq!(lines_of(&fi.duplicates), [line(1021)]);
     assert_eq!(fi.duplicates.first[0].value, Some(20.5));
     assert_eq!(pump.duplicates.total, 1);
@@ -681,7 +681,6 @@ fn every_wide_fault_is_counted_at_its_line() {
         )),
         "{text:#?}"
     );
-    assert!(has("FI-101: 1 negative value clamped to 0"), "{text:#?}");
     assert!(
         has("TI-301: 1 flat line longer than 30 min, 40 min in all"),
         "{text:#?}"
@@ -701,19 +700,13 @@ fn every_wide_fault_is_counted_at_its_line() {
         "{text:#?}"
     );
     // For plots: the flat line, the NaN run and the empty cell (runs of
-    // missing values), the negative flow, and the row gap once (both analog
-    // tags had it).
+    // missing values) and the row gap once (both analog tags had it).
     assert_eq!(
         st.fault_windows(),
         [
             (T0, T0 + 40 * MIN, "flat line".to_string()),
             (T0 + 5 * MIN, T0 + 7 * MIN, "missing values".to_string()),
             (T0 + 12 * MIN, T0 + 12 * MIN, "missing values".to_string()),
-            (
-                T0 + 15 * MIN,
-                T0 + 15 * MIN,
-                "negative values clamped".to_string()
-            ),
             (T0 + 45 * MIN, T0 + 65 * MIN, "data gap".to_string()),
         ]
     );
@@ -770,7 +763,6 @@ fn long_faults_duplicates_and_gaps_per_tag() {
         (st.wrong_fields.total, st.wrong_fields.first[0].line),
         (1, 9)
     );
-    assert_eq!(li.clamped.total, 0);
     assert_eq!((fi.points, li.points), (2, 2));
 }
 
@@ -984,7 +976,6 @@ fn bom_and_crlf_read_like_plain_text() {
     assert!(a.sample(T0 + 98_001).ok() == Some(None) && b.sample(T0 + 98_001).ok() == Some(None));
     assert!(b.stats().rows_rejected() == 0 && b.stats().rows == 50);
     assert_eq!(a.stats().tags, b.stats().tags);
-    assert!(a.stats().tags[0].clamped.total > 0);
     // A BOM before a long header too.
     let log = format!("\u{FEFF}time,tag,value\r\n{},FI-101,1\r\n", iso(T0));
     let mut r = reader(&log, &tags);

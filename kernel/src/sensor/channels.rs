@@ -225,11 +225,6 @@ impl<S: Scalar, const N: usize, const I: usize, const O: usize> Channels<S, N, I
         self.level.is_some()
     }
 
-    /// True if outlet `k` has a flow meter.
-    pub fn outlet_metered(&self, k: usize) -> bool {
-        self.outlet_flows.get(k).is_some_and(|s| s.is_some())
-    }
-
     /// The signal of a channel, if it is conditioned.
     pub fn signal(&self, ch: Channel) -> Option<&Signal<S>> {
         match ch {

@@ -297,12 +297,6 @@ fn configuration_errors_are_values() {
         Tank::observed(observer(0.0), no_level).err(),
         Some(Error::SensorClosure)
     );
-    let mut unmetered = spec(true);
-    unmetered.channels.outlet_flows = [None];
-    assert_eq!(
-        Tank::observed(observer(0.0), unmetered).err(),
-        Some(Error::SensorClosure)
-    );
     let mut p = spec(false);
     p.nis_probability = 1.0;
     assert_eq!(

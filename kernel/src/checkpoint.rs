@@ -8,7 +8,7 @@
 //! touched. [`Checkpoints::restore`] takes the newest slot that passes every
 //! check and says which slot it took and why the other was not taken.
 //!
-//! # Slot format (format version 1)
+//! # Slot format (format version 2; version 1 had no sensor checkpoint, NIS windows that slid, and no re-seed counter)
 //!
 //! All integers little-endian. Slot `k` (0 or 1) starts at
 //! `base + k·slot_len`.

@@ -461,13 +461,16 @@ impl fmt::Display for Summary {
                 writeln!(f, "  no alarm: the balance closes")?;
             }
             for a in &c.alarms {
-                writeln!(
-                    f,
-                    "  ALARM {}: from {} to {}",
-                    a.alarm,
-                    a.window.start,
-                    a.window.end.as_deref().unwrap_or("the end")
-                )?;
+                match &a.window.end {
+                    Some(end) => {
+                        writeln!(f, "  alarm {}: from {} to {end}", a.alarm, a.window.start)?
+                    }
+                    None => writeln!(
+                        f,
+                        "  ALARM {}: from {}, still on at the end of the log",
+                        a.alarm, a.window.start
+                    )?,
+                }
             }
         }
         if !self.analyser_comparison.is_empty() {

@@ -32,8 +32,12 @@ pub enum CusumSide {
 /// Both statistics are limited to `2h`: this does not change when an alarm is
 /// first raised, and it lets the alarm clear by itself about `h/k`
 /// observations after the shift has gone, instead of after as many as it
-/// lasted. [`Cusum::reset`] clears it at once (acknowledge). A non-finite
-/// observation is skipped.
+/// lasted. When a side's alarm clears (its statistic falls back to `h`),
+/// that side restarts from zero, so that the next in-control run is as long
+/// as the tables say (without the restart, a statistic left just below `h`
+/// alarms again within a few observations: in a simulated clean year with
+/// `h = 7` that tripled the alarm count). [`Cusum::reset`] clears it at
+/// once (acknowledge). A non-finite observation is skipped.
 #[cfg_attr(feature = "serde", derive(serde::Serialize, serde::Deserialize))]
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Cusum<S> {
@@ -68,8 +72,21 @@ impl<S: Scalar> Cusum<S> {
     pub fn update(&mut self, x: S) -> Option<CusumSide> {
         if x.is_finite() {
             let cap = self.h + self.h;
-            self.upper = (self.upper + x - self.k).max(S::ZERO).min(cap);
-            self.lower = (self.lower - x - self.k).max(S::ZERO).min(cap);
+            let h = self.h;
+            // A side whose alarm ends (its statistic falls back to h)
+            // restarts from zero: each alarm episode is then followed by
+            // a fresh in-control run, as the ARL tables assume, instead of
+            // a statistic left just below h that alarms again at once.
+            let next = |s: S, d: S| {
+                let n = (s + d).max(S::ZERO).min(cap);
+                if s > h && n <= h {
+                    S::ZERO
+                } else {
+                    n
+                }
+            };
+            self.upper = next(self.upper, x - self.k);
+            self.lower = next(self.lower, -x - self.k);
         }
         self.alarm()
     }

@@ -137,6 +137,8 @@ fn cusum_basics() {
         assert_eq!(c.update(0.0), Some(CusumSide::Upper), "obs {i}");
     }
     assert_eq!(c.update(0.0), None);
+    // The alarm has ended: that side restarts from zero.
+    assert_eq!(c.upper(), 0.0);
     // Lower side.
     c.reset();
     for _ in 0..3 {

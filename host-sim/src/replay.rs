@@ -365,7 +365,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
             open.as_ref(),
             measured,
             &biases,
-            &frame.flows_m3h,
+            &frame.flows,
             &frame.analyses,
         );
         if (t - self.t0) % self.every == 0 {

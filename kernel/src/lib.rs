@@ -36,7 +36,10 @@
 //!   [`Model::max_substeps`]).
 //!
 //! The equations are written out in [`model`]; what one tick does, in order,
-//! in [`vessel`]; the integrators and their properties in [`integrate`].
+//! in [`vessel`]; the integrators and their properties in [`integrate`]. The
+//! sensor a plant runs — raw readings in, conditioned, balanced, corrected
+//! and diagnosed, estimates with their uncertainty and NE107 status out — is
+//! [`Sensor`], one `tick` in the order documented in [`sensor`].
 //!
 //! ## Layers (one module each)
 //!
@@ -51,6 +54,7 @@
 //! | [`vessel`] | the state and its [`Vessel::step`] |
 //! | [`observer`] | extended Kalman filter: level, analyser and delayed lab corrections, meter biases |
 //! | [`diagnostics`] | balance-closure CUSUM, NIS model-mismatch test, NAMUR NE107 status and output qualities |
+//! | [`sensor`] | the soft sensor as one type: conditioning of every input, the balance or the observer, recovery, closure, NIS, NE107 — what the firmware and the replay drive |
 //! | [`status`] | status flags and what a tick reports |
 //! | [`storage`] | byte storage for checkpoints: trait, RAM, SPI FRAM driver |
 //! | [`crc`] | CRC-32 for checkpoint records |

@@ -310,7 +310,7 @@ fn run(p: &Plant, fault: Fault) -> Outcome {
 }
 
 proptest! {
-    #![proptest_config(Config { cases: 96, ..Config::default() })]
+    #![proptest_config(Config { cases: 256, ..Config::default() })]
 
     #[test]
     fn one_fault_then_back_within_three_sigma(p in plant(), f in fault()) {

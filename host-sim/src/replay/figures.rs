@@ -92,7 +92,7 @@ impl Figures {
         open: Option<&Estimate<S, N>>,
         measured_level: Option<(f64, f64)>,
         biases: &[(f64, f64)],
-        flows_m3h: &[f64],
+        flows: &[f64],
         analyses: &[Option<f64>],
     ) {
         self.level_est.push(x, e.level.to_f64());
@@ -113,8 +113,8 @@ impl Figures {
         for (s, b) in self.bias.iter_mut().zip(biases.iter()) {
             s.push(x, 100.0 * b.0);
         }
-        for (s, q) in self.flows.iter_mut().zip(flows_m3h.iter()) {
-            s.push(x, *q);
+        for (s, q) in self.flows.iter_mut().zip(flows.iter()) {
+            s.push(x, *q * 3600.0); // m³/s → m³/h, the plot's unit
         }
         for ((_, m), c) in self.analysers.iter_mut().zip(analyses.iter()) {
             if let Some(c) = c {

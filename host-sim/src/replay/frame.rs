@@ -72,8 +72,8 @@ pub struct Frame<S, const N: usize> {
     /// The measured level as logged, m (NaN when missing or stale; `None`
     /// without a level signal).
     pub level: Option<f64>,
-    /// Each metered flow as logged, m³/h (inlets, then measured outlets).
-    pub flows_m3h: Vec<f64>,
+    /// Each metered flow as logged, m³/s (inlets, then measured outlets).
+    pub flows: Vec<f64>,
     /// Each analyser's new analysis at this tick, mol/m³.
     pub analyses: Vec<Option<f64>>,
 }
@@ -139,11 +139,11 @@ impl Sources {
             temperature: S::of(self.temperature.reading(samples)),
             level: S::of(f64::NAN),
         };
-        let mut flows_m3h = Vec::with_capacity(I + O);
+        let mut flows = Vec::with_capacity(I + O);
         for (k, src) in self.inlet_flow.iter().enumerate().take(I) {
             let q = src.reading(samples);
             readings.inlet_flows[k] = S::of(q);
-            flows_m3h.push(q * 3600.0);
+            flows.push(q);
             for (i, f) in self.feeds[k].iter().enumerate().take(N) {
                 readings.feed[k][i] = S::of(f.reading(samples));
             }
@@ -152,7 +152,7 @@ impl Sources {
             if let Some(src) = src {
                 let q = src.reading(samples);
                 readings.outlet_flows[k] = S::of(q);
-                flows_m3h.push(q * 3600.0);
+                flows.push(q);
             }
         }
         let level = self.level.as_ref().map(|l| l.reading(samples));
@@ -176,7 +176,7 @@ impl Sources {
         Frame {
             readings,
             level,
-            flows_m3h,
+            flows,
             analyses,
         }
     }

@@ -121,9 +121,9 @@ pub struct DiagnosticInputs<const N: usize> {
     pub temperature: Quality,
     /// Quality of each species' feed composition (worst over the inlets).
     pub feed: [Quality; N],
-    /// The balance-closure alarm ([`ClosureMonitor::alarm`]).
+    /// The balance-closure alarm ([`ClosureMonitor::alarm`](super::ClosureMonitor::alarm)).
     pub closure: Option<ClosureAlarm>,
-    /// The model-mismatch state ([`NisMonitor::state`]).
+    /// The model-mismatch state ([`NisMonitor::state`](super::NisMonitor::state)).
     pub nis: NisState,
     /// The caller's function-check switch: simulation, calibration,
     /// maintenance mode or estimator start-up.

@@ -63,6 +63,8 @@ use std::path::{Path, PathBuf};
 use std::process::{Command, ExitStatus, Stdio};
 use std::time::{Duration, Instant};
 
+use holdup_kernel::{Bottom, Shape};
+
 /// The `holdup` binary built for this bench (release settings).
 const HOLDUP: &str = env!("CARGO_BIN_EXE_holdup");
 /// The scipy comparison script, next to this file.
@@ -156,58 +158,64 @@ fn level_m() -> f64 {
     VOLUME_M3 / (std::f64::consts::PI * DIAMETER_M * DIAMETER_M / 4.0)
 }
 
-fn plant_toml() -> String {
-    format!(
-        r#"# Blend tank T-7, Harlowe Fen bulk terminal (invented), for the replay benchmark.
-[plant]
-name = "Harlowe Fen T-7 blend tank"
-tick = "1 s"
-scalar = "f32"
-method = "auto"
+/// The benchmark plant, `fixtures/bench/plant.toml`.
+const PLANT_TOML: &str = include_str!("../../fixtures/bench/plant.toml");
 
-[vessel]
-shape = "vertical-cylinder"
-diameter = {{ value = {DIAMETER_M}, unit = "m" }}
-height = {{ value = {HEIGHT_M}, unit = "m" }}
-bottom = "flat"
-
-[[species]]
-name = "A"
-
-[[inlet]]
-name = "blend feed"
-flow = {{ tag = "FI-101", unit = "m3/h" }}
-feed = {{ A = {{ tag = "AI-101", unit = "mol/m3" }} }}
-
-[[outlet]]
-name = "to storage"
-kind = "measured"
-flow = {{ tag = "FI-201", unit = "m3/h" }}
-
-[temperature]
-tag = "TI-301"
-unit = "degC"
-
-[level]
-tag = "LI-301"
-unit = "m"
-
-[[reaction]]
-name = "decay of A"
-stoichiometry = {{ A = -1 }}
-orders = {{ A = 1 }}
-rate_constant = {{ value = {K_PER_S:e}, unit = "1/s" }}
-
-[initial]
-volume = {{ value = {VOLUME_M3}, unit = "m3" }}
-concentrations = {{ A = {{ value = {C0_MOL_M3}, unit = "mol/m3" }} }}
-
-[log]
-format = "wide"
-time = "epoch"
-time_column = "time"
-"#
-    )
+/// Refuse to run when the committed plant and the constants of the closed
+/// form (module docs) describe different tanks: the error would then measure
+/// the mismatch, not the kernel.
+fn check_plant() -> Result<(), String> {
+    let fixture = Path::new(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../fixtures/bench/plant.toml"
+    ));
+    let plant = holdup_sim::config::parse(PLANT_TOML, fixture).map_err(|e| e.to_string())?;
+    let mut differences = Vec::new();
+    let mut compare = |what: &str, fixture: Option<f64>, constant: f64| {
+        if fixture != Some(constant) {
+            differences.push(format!(
+                "{what}: {fixture:?} in the file, {constant} in the bench"
+            ));
+        }
+    };
+    let (diameter, height) = match plant.shape {
+        Shape::VerticalCylinder {
+            diameter,
+            height,
+            bottom: Bottom::Flat,
+        } => (Some(diameter), Some(height)),
+        _ => (None, None),
+    };
+    compare(
+        "flat-bottomed vertical cylinder, diameter m",
+        diameter,
+        DIAMETER_M,
+    );
+    compare(
+        "flat-bottomed vertical cylinder, height m",
+        height,
+        HEIGHT_M,
+    );
+    compare("initial volume m3", Some(plant.initial.volume), VOLUME_M3);
+    compare(
+        "initial c_A mol/m3",
+        plant.initial.concentrations.first().copied(),
+        C0_MOL_M3,
+    );
+    let k = match plant.reactions.as_slice() {
+        [r] => Some(r.forward.rate_constant),
+        _ => None,
+    };
+    compare("the one reaction's rate constant 1/s", k, K_PER_S);
+    if differences.is_empty() {
+        Ok(())
+    } else {
+        Err(format!(
+            "{} does not match the bench's closed form: {}",
+            fixture.display(),
+            differences.join("; ")
+        ))
+    }
 }
 
 /// Write `rows` one-second rows of the log to `path`; returns its size.
@@ -243,7 +251,7 @@ fn prepare(root: &Path, case: Case) -> io::Result<(PathBuf, PathBuf, u64, bool)>
     let dir = root.join(case.name);
     fs::create_dir_all(&dir)?;
     let config = dir.join("plant.toml");
-    fs::write(&config, plant_toml())?;
+    fs::write(&config, PLANT_TOML)?;
     let log = dir.join("log.csv");
     let meta = dir.join("log.csv.meta");
     let actual = fs::metadata(&log).map(|m| m.len()).ok();
@@ -547,6 +555,10 @@ fn main() {
                 .join("holdup-bench")
         });
     eprintln!("replay bench: {HOLDUP}, files in {}", root.display());
+    if let Err(e) = check_plant() {
+        eprintln!("error: {e}");
+        std::process::exit(1);
+    }
 
     let mut rows = Vec::new();
     let mut week_log = None;

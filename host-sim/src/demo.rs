@@ -22,98 +22,10 @@ use std::path::Path;
 use holdup_kernel::reference;
 use holdup_kernel::Inputs;
 
-use crate::replay::iso;
+use crate::text::iso;
 
-/// The caution printed with every report.
-pub const CAUTION: &str = "Estimates are advisory: validate them against lab results, never use \
-them as the only input to a safety function, and follow site procedures and local codes.";
-
-/// The demo plant's configuration file.
-pub const PLANT_TOML: &str = r#"# Reactor R-2, Brookmere soap works (an invented plant for the holdup demo).
-[plant]
-name = "Brookmere R-2 saponification reactor"
-tick = "1 s"
-scalar = "f32"
-method = "auto"
-min_holdup = { value = 50, unit = "L" }
-
-[vessel]
-shape = "vertical-cylinder"
-diameter = { value = 1.6, unit = "m" }
-height = { value = 2.0, unit = "m" }
-bottom = "dished"
-bottom_depth = { value = 0.25, unit = "m" }
-
-[[species]]
-name = "NaOH"
-molar_mass = { value = 39.997, unit = "g/mol" }
-
-[[species]]
-name = "EtOAc"
-molar_mass = { value = 88.106, unit = "g/mol" }
-
-[[species]]
-name = "NaOAc"
-molar_mass = { value = 82.034, unit = "g/mol" }
-
-[[inlet]]
-name = "caustic pump P-11"
-flow = { tag = "FI-101", unit = "m3/h" }
-feed = { NaOH = { value = 0.1, unit = "mol/L" } }
-
-[[inlet]]
-name = "ester pump P-12"
-flow = { tag = "FI-102", unit = "m3/h" }
-feed = { EtOAc = { value = 0.1, unit = "mol/L" } }
-
-[[outlet]]
-name = "product to T-3"
-kind = "measured"
-flow = { tag = "FI-201", unit = "m3/h" }
-
-[temperature]
-tag = "TI-301"
-unit = "degC"
-
-[level]
-tag = "LI-301"
-unit = "m"
-
-[[reaction]]
-name = "saponification"
-stoichiometry = { NaOH = -1, EtOAc = -1, NaOAc = 1 }
-orders = { NaOH = 1, EtOAc = 1 }
-rate_constant = { value = 0.11, unit = "L/(mol*s)" }
-activation_energy = { value = 41, unit = "kJ/mol" }
-reference_temperature = { value = 25, unit = "degC" }
-
-[[reaction]]
-name = "caustic carbonation"
-stoichiometry = { NaOH = -1 }
-orders = { NaOH = 1 }
-rate_constant = { value = 2e-6, unit = "1/s" }
-
-[initial]
-volume = { value = 2.5, unit = "m3" }
-concentrations = { NaOH = { value = 5, unit = "mol/m3" }, EtOAc = { value = 5, unit = "mol/m3" }, NaOAc = { value = 40, unit = "mol/m3" } }
-temperature = { value = 25, unit = "degC" }
-
-[log]
-format = "wide"
-time = "iso8601"
-max_age = "10 min"
-
-# Correct the balances with the level transmitter and the lab, and track the
-# caustic meter, which the instrument shop suspects of reading high.
-[estimator]
-level_sigma = { value = 2, unit = "mm" }
-holdup_drift = { value = 5, unit = "L" }
-concentration_drift = { value = 0.2, unit = "mol/m3" }
-bias_meters = ["caustic pump P-11"]
-bias_sigma = 0.05
-bias_drift = 0.002
-lab_sigma = 0.02
-"#;
+/// The demo plant's configuration file (`fixtures/demo/plant.toml`).
+pub const PLANT_TOML: &str = include_str!("../../fixtures/demo/plant.toml");
 
 /// Start of the demo log: 2026-03-02T06:00:00+01:00 (ms since the epoch).
 pub const START_MS: i64 = 1_772_427_600_000;

@@ -6,8 +6,9 @@
 //! results), [`to_kernel`] (plant → kernel types), [`replay`] (sources →
 //! the kernel's sensor → sinks: estimates, summary, plots, with [`digits`]
 //! for the figures it writes),
-//! [`plot`] (SVG figures); [`demo`] generates an
-//! invented plant's files; [`verify`] holds the analytic cases.
+//! [`plot`] (SVG figures), [`text`] (the caution and timestamps the reports
+//! share); [`demo`] generates an invented plant's files; [`verify`] holds
+//! the analytic cases.
 
 pub mod config;
 pub mod demo;
@@ -17,6 +18,7 @@ pub mod log;
 pub mod plant;
 pub mod plot;
 pub mod replay;
+pub mod text;
 pub mod to_kernel;
 pub mod units;
 pub mod verify;

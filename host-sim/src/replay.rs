@@ -44,11 +44,11 @@ use self::summary::{
     FinalOut, LevelAgreement, MeterBias, SpeciesAgreement, Summary, Window, BIAS_SIGNIFICANT_MIN,
     BIAS_SIGNIFICANT_SIGMAS,
 };
-use crate::demo::CAUTION;
 use crate::digits::Digits;
 use crate::lab::{self, LabError, LabResult};
 use crate::log::{LogError, LogReader};
 use crate::plant::{Plant, ScalarKind};
+use crate::text::CAUTION;
 
 /// What to replay and where to put the results.
 #[derive(Clone, Debug)]
@@ -127,12 +127,7 @@ pub(crate) fn io_err(path: &Path) -> impl Fn(std::io::Error) -> ReplayError + '_
     }
 }
 
-/// Format ms since the Unix epoch as ISO 8601 UTC.
-pub fn iso(ms: i64) -> String {
-    chrono::DateTime::from_timestamp_millis(ms)
-        .map(|d| d.format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string())
-        .unwrap_or_else(|| format!("{ms} ms"))
-}
+pub use crate::text::iso;
 
 /// The outcome of a replay: the summary (also written to `summary.json`)
 /// and its text (also printed).

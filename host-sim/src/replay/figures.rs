@@ -7,11 +7,11 @@ use holdup_kernel::{Estimate, Scalar, SensorReport};
 
 use super::record::Record;
 use super::{io_err, iso, ReplayError};
-use crate::demo::CAUTION;
 use crate::lab::LabResult;
 use crate::log::LogStats;
 use crate::plant::{OutletKind, Plant};
 use crate::plot::{Band, Color, Figure, Markers, Panel, Series};
+use crate::text::CAUTION;
 
 /// The series being collected (each bounded in memory by decimation).
 pub struct Figures {

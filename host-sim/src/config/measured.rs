@@ -1,0 +1,114 @@
+//! What is measured on the vessel itself: `[temperature]`, `[level]` and
+//! the online analysers `[[analyser]]`.
+
+use super::quantity::{Conv, TagMode};
+use super::source::{source_of, Source, TagUses};
+use super::table::{array_section, list, required_section, section, Tbl, R};
+use crate::plant::{limits, Analyser, Signal, Species};
+use crate::units::Kind;
+
+const ANALYSER_KEYS: &[&str] = &["species", "reading", "sigma", "cycle"];
+
+/// `[temperature]`: a constant above absolute zero or a tag.
+pub(super) fn read_temperature(root: &Tbl<'_>, tags: &mut TagUses) -> R<Signal> {
+    let temp = required_section(
+        root,
+        "temperature",
+        "the vessel temperature: tag = \"...\", unit = \"degC\" (or value = ..., unit = ...)",
+    )?;
+    let temperature = match source_of(&temp, Conv::Kind(Kind::Temperature), TagMode::Allowed)? {
+        Source::Const(q) => Source::Const(q.kelvin(root.ctx)?),
+        s => s,
+    };
+    Ok(tags.signal(temperature, false))
+}
+
+/// `[level]` (optional): a tag only.
+pub(super) fn read_level(root: &Tbl<'_>, tags: &mut TagUses) -> R<Option<Signal>> {
+    Ok(match section(root, "level")? {
+        None => None,
+        Some(l) => Some(tags.signal(
+            source_of(&l, Conv::Kind(Kind::Length), TagMode::Only)?,
+            false,
+        )),
+    })
+}
+
+/// Every `[[analyser]]`, at most one per species.
+pub(super) fn read_analysers(
+    root: &Tbl<'_>,
+    species: &[Species],
+    tick_ms: u64,
+    tags: &mut TagUses,
+) -> R<Vec<Analyser>> {
+    let mut analysers: Vec<Analyser> = Vec::new();
+    for t in array_section(root, "analyser", limits::SPECIES, "plant::limits::SPECIES")? {
+        let a = read_analyser(&t, species, tick_ms, tags)?;
+        if analysers.iter().any(|b| b.species == a.species) {
+            let (name, at) = t.string("species")?.unwrap_or(("", t.at));
+            return Err(t.err(
+                at,
+                "species",
+                format!("a second analyser for \"{name}\"; give each species at most one"),
+            ));
+        }
+        analysers.push(a);
+    }
+    Ok(analysers)
+}
+
+/// `[[analyser]]`: an online analyser of one species.
+fn read_analyser(
+    t: &Tbl<'_>,
+    species: &[Species],
+    tick_ms: u64,
+    tags: &mut TagUses,
+) -> R<Analyser> {
+    t.check_keys(ANALYSER_KEYS)?;
+    let names: Vec<&str> = species.iter().map(|s| s.name.as_str()).collect();
+    let (name, at) = t
+        .string("species")?
+        .ok_or_else(|| t.missing("species", &format!("one of {}", list(&names))))?;
+    let index = species.iter().position(|s| s.name == name).ok_or_else(|| {
+        t.err(
+            at,
+            "species",
+            format!(
+                "unknown species \"{name}\"; defined species: {}",
+                list(&names)
+            ),
+        )
+    })?;
+    let conv = Conv::Concentration(species[index].molar_mass);
+    let reading = t.signal("reading", conv, TagMode::Only)?.ok_or_else(|| {
+        t.missing(
+            "reading",
+            "the analyser's tag and unit, e.g. { tag = \"AI-201\", unit = \"mol/L\" }",
+        )
+    })?;
+    let sigma = t
+        .req_quantity(
+            "sigma",
+            conv,
+            "1σ of one reading, e.g. { value = 0.02, unit = \"mol/L\" }",
+        )?
+        .positive(t.ctx)?
+        .si;
+    let cycle_ms = match t.duration("cycle")? {
+        None => tick_ms,
+        Some((ms, _)) if ms >= tick_ms => ms,
+        Some((_, at)) => {
+            return Err(t.err(
+                at,
+                "cycle",
+                format!("the analyser cycle must be at least the tick ({tick_ms} ms)"),
+            ))
+        }
+    };
+    Ok(Analyser {
+        species: index,
+        reading: tags.signal(reading, false),
+        sigma,
+        cycle_ms,
+    })
+}

@@ -1,6 +1,7 @@
 //! Tests of the configuration reader, through [`super::parse`] as a user's
 //! file would be read; the `[estimator]` ones in [`estimator`].
 
+mod docs;
 mod estimator;
 
 use super::*;

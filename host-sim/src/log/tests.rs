@@ -551,16 +551,11 @@ fn exception_compressed_long_log_reproduces_dense_wide_log() {
     assert_eq!(l.stats().tags[0].flat_lines.total, 0);
 }
 
-#[test]
-fn every_wide_fault_is_counted_at_its_line() {
-    // Rows every minute; FI-101 = 10 + m/2 (a flow, clamped at 0), TI-301
-    // flat at 25.0 up to minute 40, PUMP (hold) always 1. Faults are put in
-    // at known lines, recorded as the log is written.
-    let tags = [
-        flow("FI-101", 10),
-        tag("TI-301", Interpolation::Linear, 10),
-        tag("PUMP", Interpolation::Hold, 60),
-    ];
+/// The log of [`every_wide_fault_is_counted_at_its_line`], and the line of
+/// each minute's row; the extra faulty rows are keyed 1000 + a minute (1019:
+/// a row back at minute 19, 1021: a second row at minute 21, 1030: too few
+/// fields, 1031: a bad timestamp, followed by a blank line).
+fn faulty_wide_log() -> (String, HashMap<i64, u64>) {
     let mut lines = vec!["time,FI-101,TI-301,PUMP,comment".to_string()];
     let mut line_of = HashMap::new();
     let row = |m: i64, fi: String, ti: String| format!("{},{fi},{ti},1,", iso(T0 + m * MIN));
@@ -601,7 +596,20 @@ fn every_wide_fault_is_counted_at_its_line() {
             _ => {}
         }
     }
-    let log = lines.join("\n");
+    (lines.join("\n"), line_of)
+}
+
+#[test]
+fn every_wide_fault_is_counted_at_its_line() {
+    // Rows every minute; FI-101 = 10 + m/2 (a flow, clamped at 0), TI-301
+    // flat at 25.0 up to minute 40, PUMP (hold) always 1. Faults are put in
+    // at known lines, recorded as the log is written.
+    let tags = [
+        flow("FI-101", 10),
+        tag("TI-301", Interpolation::Linear, 10),
+        tag("PUMP", Interpolation::Hold, 60),
+    ];
+    let (log, line_of) = faulty_wide_log();
     let mut r = reader(&log, &tags);
     use SampleState::*;
     let mut samples = Vec::new();

@@ -149,6 +149,13 @@ fn docs_example_parses_into_si() {
     assert_eq!(fi101.interpolation, Interpolation::Linear);
     assert_eq!(fi101.max_age_ms, 1_800_000);
     assert!(fi101.flow);
+    // Conditioning limits stay in the tag's own unit (m³/h here).
+    let c = &fi101.conditioning;
+    assert_eq!((c.min, c.max), (Some(-0.05), Some(4.0)));
+    assert_eq!(c.max_rate_per_s, Some(0.5));
+    assert_eq!(c.stuck_ms, Some(7_200_000));
+    assert_eq!(c.stuck_tolerance, 0.0);
+    assert_eq!(c.hold_ms, 600_000);
 
     // 3 mm, 10 L, 0.5 mol/m³ for every species, 20 L, NaOH 2 mol/m³ (the
     // others their default, 10 % of 0 but at least 0.1 mol/m³).
@@ -168,5 +175,5 @@ fn docs_example_parses_into_si() {
     );
     assert_eq!(e.lab_max_age_ms, 28_800_000);
     assert_eq!(e.closure_window_ms, 1_800_000);
-    assert_eq!((e.cusum_k, e.cusum_h), (0.5, 5.0));
+    assert_eq!((e.cusum_k, e.cusum_h), (0.5, 7.0));
 }

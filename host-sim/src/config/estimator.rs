@@ -65,7 +65,7 @@ const MIN_CLOSURE_WINDOW_TICKS: u64 = 2;
 /// Default `[estimator] cusum_k`, σ.
 const DEFAULT_CUSUM_K: f64 = 0.5;
 /// Default `[estimator] cusum_h`, σ.
-const DEFAULT_CUSUM_H: f64 = 5.0;
+const DEFAULT_CUSUM_H: f64 = 7.0;
 
 /// What `[estimator]` is checked against and its defaults derived from.
 pub(super) struct EstimatorContext<'a> {

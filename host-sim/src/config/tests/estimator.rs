@@ -146,7 +146,8 @@ fn estimator_defaults_with_only_level_sigma() {
         (e.lab_max_age_ms, e.closure_window_ms),
         (28_800_000, 1_800_000)
     );
-    assert_eq!((e.cusum_k, e.cusum_h), (0.5, 5.0));
+    // h = 7: 0.41 false alarms per 30 days of 30-min windows (docs/status.md).
+    assert_eq!((e.cusum_k, e.cusum_h), (0.5, 7.0));
 
     // A flat cylinder (capacity π·0.8²·2 m³) holding 50 L, nothing
     // dissolved, ticking once an hour.
@@ -596,14 +597,14 @@ fn estimator_positive_numbers_and_cusum_order() {
         "[estimator] cusum_h",
         &["must be greater than cusum_k (default 0.5), got 0.4"],
     );
-    let text = with_estimator("cusum_k = 6\n");
+    let text = with_estimator("cusum_k = 8\n");
     let e = err(&text);
     check(
         &e,
         &text,
         "cusum_k",
         "[estimator] cusum_k",
-        &["must be less than cusum_h (default 5), got 6"],
+        &["must be less than cusum_h (default 7), got 8"],
     );
     let e = estimator(&with_estimator("cusum_k = 0.25\ncusum_h = 0.3\n"));
     assert_eq!((e.cusum_k, e.cusum_h), (0.25, 0.3));

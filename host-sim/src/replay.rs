@@ -409,6 +409,64 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
         Ok(Outcome { summary, text })
     }
 
+    /// The estimator's counters, re-seeds and lab and analyser outcomes.
+    fn estimator_out(&self) -> Option<EstimatorOut> {
+        let k = self.main.observer()?.counters();
+        Some(EstimatorOut {
+            level_accepted: k.level_accepted,
+            level_rejected: k.level_rejected,
+            composition_accepted: k.composition_accepted,
+            composition_rejected: k.composition_rejected,
+            skipped: k.skipped,
+            lab_expired: k.lab_expired,
+            covariance_guarded: k.covariance_guarded,
+            reseeds: u64::from(self.main.counters().reseeds),
+            reseed_times: self
+                .record
+                .reseeds
+                .iter()
+                .take(record::KEEP_FIRST)
+                .map(|t| iso(*t))
+                .collect(),
+            lab: self.labs.tally.clone(),
+            analysers: self.labs.analyser_tally.clone(),
+        })
+    }
+
+    /// Each biased meter with its verdict.
+    fn meters_out(&self) -> Vec<MeterBias> {
+        self.bias_names
+            .iter()
+            .zip(self.biases())
+            .map(|(n, (b, s))| MeterBias {
+                meter: n.clone(),
+                bias: b,
+                sigma: s,
+                recalibrate: b.abs() >= BIAS_SIGNIFICANT_MIN
+                    && b.abs() >= BIAS_SIGNIFICANT_SIGMAS * s,
+            })
+            .collect()
+    }
+
+    /// The closure test with its alarm windows.
+    fn closure_out(&self) -> Option<ClosureOut> {
+        let m = self.main.closure()?;
+        Some(ClosureOut {
+            windows_evaluated: m.windows_evaluated(),
+            windows_lost: m.windows_lost(),
+            residual_sigma_m3: m.residual_sigma().to_f64(),
+            alarms: self
+                .record
+                .closure
+                .iter()
+                .map(|(span, a)| ClosureAlarmOut {
+                    alarm: a.message(),
+                    window: Window::from(span),
+                })
+                .collect(),
+        })
+    }
+
     fn summary(
         &self,
         stats: &crate::log::LogStats,
@@ -435,8 +493,6 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
                 .map(|(s, x)| (s.name.clone(), x.to_f64()))
                 .collect()
         };
-        let counters = self.main.observer().map(|o| o.counters());
-        let sensor = self.main.counters();
         let mut outputs = vec![
             "estimates.csv",
             "summary.json",
@@ -484,51 +540,9 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
                 .collect(),
             inputs: inputs_out(&self.record),
             open_loop_level_vs_measured: self.level_error.out(),
-            estimator: counters.map(|k| EstimatorOut {
-                level_accepted: k.level_accepted,
-                level_rejected: k.level_rejected,
-                composition_accepted: k.composition_accepted,
-                composition_rejected: k.composition_rejected,
-                skipped: k.skipped,
-                lab_expired: k.lab_expired,
-                covariance_guarded: k.covariance_guarded,
-                reseeds: u64::from(sensor.reseeds),
-                reseed_times: self
-                    .record
-                    .reseeds
-                    .iter()
-                    .take(record::KEEP_FIRST)
-                    .map(|t| iso(*t))
-                    .collect(),
-                lab: self.labs.tally.clone(),
-                analysers: self.labs.analyser_tally.clone(),
-            }),
-            meters: self
-                .bias_names
-                .iter()
-                .zip(self.biases())
-                .map(|(n, (b, s))| MeterBias {
-                    meter: n.clone(),
-                    bias: b,
-                    sigma: s,
-                    recalibrate: b.abs() >= BIAS_SIGNIFICANT_MIN
-                        && b.abs() >= BIAS_SIGNIFICANT_SIGMAS * s,
-                })
-                .collect(),
-            closure: self.main.closure().map(|m| ClosureOut {
-                windows_evaluated: m.windows_evaluated(),
-                windows_lost: m.windows_lost(),
-                residual_sigma_m3: m.residual_sigma().to_f64(),
-                alarms: self
-                    .record
-                    .closure
-                    .iter()
-                    .map(|(span, a)| ClosureAlarmOut {
-                        alarm: a.message(),
-                        window: Window::from(span),
-                    })
-                    .collect(),
-            }),
+            estimator: self.estimator_out(),
+            meters: self.meters_out(),
+            closure: self.closure_out(),
             status_ticks: status_out(&self.record),
             analyser_comparison: plant
                 .analysers

@@ -347,26 +347,8 @@ fn agreement_rows(f: &mut fmt::Formatter<'_>, rows: &[SpeciesAgreement]) -> fmt:
     Ok(())
 }
 
-impl fmt::Display for Summary {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        writeln!(
-            f,
-            "Replay of {} ({}, {}, tick {} ms, {})",
-            self.plant, self.scalar, self.method, self.tick_ms, self.corrected_by
-        )?;
-        writeln!(
-            f,
-            "  span {} .. {} ({} ticks, {:.2} s wall, {:.0} ticks/s)",
-            self.start,
-            self.end,
-            self.ticks,
-            self.wall_seconds,
-            self.ticks as f64 / self.wall_seconds.max(1e-9)
-        )?;
-        writeln!(f, "Log:")?;
-        for l in &self.log_lines {
-            writeln!(f, "  {l}")?;
-        }
+impl Summary {
+    fn fmt_inputs(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         if self.inputs.is_empty() {
             writeln!(f, "Inputs: every tagged value passed its checks")?;
         } else {
@@ -399,21 +381,10 @@ impl fmt::Display for Summary {
                 writeln!(f)?;
             }
         }
-        if self.kernel_flags_ticks.is_empty() {
-            writeln!(f, "Kernel: no clamps or faults")?;
-        } else {
-            writeln!(f, "Kernel (ticks with each flag):")?;
-            for (k, v) in &self.kernel_flags_ticks {
-                writeln!(f, "  {k}: {v}")?;
-            }
-        }
-        if let Some(l) = &self.open_loop_level_vs_measured {
-            writeln!(
-                f,
-                "Open-loop vs measured level: RMSE {:.4} m, max {:.4} m over {} ticks",
-                l.rmse_m, l.max_abs_m, l.n
-            )?;
-        }
+        Ok(())
+    }
+
+    fn fmt_estimator(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         if let Some(e) = &self.estimator {
             writeln!(
                 f,
@@ -442,15 +413,10 @@ impl fmt::Display for Summary {
         for m in &self.meters {
             writeln!(f, "  meter {}", m.verdict())?;
         }
-        let s = &self.status_ticks;
-        writeln!(
-            f,
-            "Status (NAMUR NE107, ticks): good {}, maintenance required {}, out of specification {}, function check {}, failure {}",
-            s.good, s.maintenance_required, s.out_of_specification, s.function_check, s.failure
-        )?;
-        for (k, v) in &s.reasons {
-            writeln!(f, "  {k}: {v} ticks")?;
-        }
+        Ok(())
+    }
+
+    fn fmt_closure(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         if let Some(c) = &self.closure {
             writeln!(
                 f,
@@ -473,6 +439,57 @@ impl fmt::Display for Summary {
                 }
             }
         }
+        Ok(())
+    }
+}
+
+impl fmt::Display for Summary {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        writeln!(
+            f,
+            "Replay of {} ({}, {}, tick {} ms, {})",
+            self.plant, self.scalar, self.method, self.tick_ms, self.corrected_by
+        )?;
+        writeln!(
+            f,
+            "  span {} .. {} ({} ticks, {:.2} s wall, {:.0} ticks/s)",
+            self.start,
+            self.end,
+            self.ticks,
+            self.wall_seconds,
+            self.ticks as f64 / self.wall_seconds.max(1e-9)
+        )?;
+        writeln!(f, "Log:")?;
+        for l in &self.log_lines {
+            writeln!(f, "  {l}")?;
+        }
+        self.fmt_inputs(f)?;
+        if self.kernel_flags_ticks.is_empty() {
+            writeln!(f, "Kernel: no clamps or faults")?;
+        } else {
+            writeln!(f, "Kernel (ticks with each flag):")?;
+            for (k, v) in &self.kernel_flags_ticks {
+                writeln!(f, "  {k}: {v}")?;
+            }
+        }
+        if let Some(l) = &self.open_loop_level_vs_measured {
+            writeln!(
+                f,
+                "Open-loop vs measured level: RMSE {:.4} m, max {:.4} m over {} ticks",
+                l.rmse_m, l.max_abs_m, l.n
+            )?;
+        }
+        self.fmt_estimator(f)?;
+        let s = &self.status_ticks;
+        writeln!(
+            f,
+            "Status (NAMUR NE107, ticks): good {}, maintenance required {}, out of specification {}, function check {}, failure {}",
+            s.good, s.maintenance_required, s.out_of_specification, s.function_check, s.failure
+        )?;
+        for (k, v) in &s.reasons {
+            writeln!(f, "  {k}: {v} ticks")?;
+        }
+        self.fmt_closure(f)?;
         if !self.analyser_comparison.is_empty() {
             writeln!(
                 f,

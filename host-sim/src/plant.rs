@@ -208,7 +208,8 @@ impl Default for Conditioning {
 }
 
 /// Log layout.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "lowercase")]
 pub enum LogFormat {
     /// Detect from the header.
     Auto,
@@ -219,7 +220,8 @@ pub enum LogFormat {
 }
 
 /// Timestamp notation.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "lowercase")]
 pub enum TimeFormat {
     /// Detect from the first data row.
     Auto,

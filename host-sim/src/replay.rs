@@ -41,8 +41,8 @@ use self::labs::Labs;
 use self::record::Record;
 use self::summary::{
     inputs_out, method_word, status_out, AgreementOut, ClosureAlarmOut, ClosureOut, EstimatorOut,
-    FinalOut, LevelAgreement, MeterBias, SpeciesAgreement, Summary, Window, BIAS_SIGNIFICANT_MIN,
-    BIAS_SIGNIFICANT_SIGMAS,
+    FinalOut, LevelAgreement, LogOut, MeterBias, SpeciesAgreement, Summary, Window,
+    BIAS_SIGNIFICANT_MIN, BIAS_SIGNIFICANT_SIGMAS,
 };
 use crate::digits::Digits;
 use crate::lab::{self, LabError, LabResult};
@@ -530,7 +530,10 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
             end: iso(t_end),
             ticks: self.record.ticks,
             wall_seconds: wall,
-            log_stats: stats.to_json(),
+            log_stats: LogOut {
+                stats: stats.clone(),
+                rows_rejected: stats.rows_rejected(),
+            },
             log_lines: stats.describe(),
             kernel_flags_ticks: self
                 .record

@@ -10,11 +10,13 @@ use crate::plant::{LogFormat, TimeFormat};
 pub const KEEP_FIRST: usize = 50;
 
 /// One occurrence of a fault at a line of the log.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
 pub struct Fault {
     /// 1-based line of the log.
     pub line: u64,
-    /// Time of the row, ms since the epoch, when it could be read.
+    /// Time of the row, ms since the epoch, when it could be read
+    /// (serialised as RFC 3339 text).
+    #[serde(serialize_with = "opt_time")]
     pub time: Option<i64>,
     /// The value concerned (raw value of a clamped point), when numeric.
     pub value: Option<f64>,
@@ -23,7 +25,7 @@ pub struct Fault {
 }
 
 /// A count of faults of one kind and the first [`KEEP_FIRST`] of them.
-#[derive(Clone, Debug, Default, PartialEq)]
+#[derive(Clone, Debug, Default, PartialEq, serde::Serialize)]
 pub struct FaultList {
     /// Every occurrence.
     pub total: u64,
@@ -54,11 +56,13 @@ impl FaultList {
 
 /// An interval of the log, `[start, end]` ms since the epoch, with the lines
 /// of its two ends.
-#[derive(Clone, Debug, PartialEq, Eq)]
+#[derive(Clone, Debug, PartialEq, Eq, serde::Serialize)]
 pub struct Window {
-    /// Start, ms since the epoch.
+    /// Start, ms since the epoch (serialised as RFC 3339 text).
+    #[serde(serialize_with = "time")]
     pub start: i64,
-    /// End, ms since the epoch.
+    /// End, ms since the epoch (serialised as RFC 3339 text).
+    #[serde(serialize_with = "time")]
     pub end: i64,
     /// Line of the start.
     pub start_line: u64,
@@ -68,7 +72,7 @@ pub struct Window {
 
 /// A count of windows of one kind, their summed length and the first
 /// [`KEEP_FIRST`] of them.
-#[derive(Clone, Debug, Default, PartialEq, Eq)]
+#[derive(Clone, Debug, Default, PartialEq, Eq, serde::Serialize)]
 pub struct WindowList {
     /// Every window.
     pub total: u64,
@@ -92,7 +96,7 @@ impl WindowList {
 }
 
 /// How many `sample` calls returned each state, for one tag.
-#[derive(Clone, Debug, Default, PartialEq, Eq)]
+#[derive(Clone, Debug, Default, PartialEq, Eq, serde::Serialize)]
 pub struct StateTicks {
     /// A stored point at the sample time.
     pub exact: u64,
@@ -107,7 +111,7 @@ pub struct StateTicks {
 }
 
 /// Per-tag counts.
-#[derive(Clone, Debug, Default, PartialEq)]
+#[derive(Clone, Debug, Default, PartialEq, serde::Serialize)]
 pub struct TagStats {
     /// Tag name.
     pub tag: String,
@@ -116,8 +120,10 @@ pub struct TagStats {
     /// Stored points accepted (a duplicate replacing a point is not a new one).
     pub points: u64,
     /// Time of the first accepted point, ms.
+    #[serde(serialize_with = "opt_time")]
     pub first_time: Option<i64>,
     /// Time of the last accepted point, ms.
+    #[serde(serialize_with = "opt_time")]
     pub last_time: Option<i64>,
     /// Missing values: empty cell, `NaN`, infinite or non-numeric text.
     pub missing: FaultList,
@@ -140,6 +146,7 @@ pub struct TagStats {
     pub ticks: StateTicks,
     /// The missing-value run still open (closed by the next valid value or
     /// the end of the log).
+    #[serde(skip)]
     pub(crate) open_missing: Option<Window>,
 }
 
@@ -169,7 +176,7 @@ pub(crate) fn close_run(open: &mut Option<Window>, list: &mut WindowList) {
 }
 
 /// Everything the reader counted.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
 pub struct LogStats {
     /// The log's path (or the name given to an in-memory reader).
     pub path: String,
@@ -408,32 +415,15 @@ fn first_window(list: &WindowList) -> String {
     }
 }
 
-impl LogStats {
-    /// As JSON (for the replay summary). Times as RFC 3339 text.
-    pub fn to_json(&self) -> serde_json::Value {
-        use serde_json::json;
-        let fault = |f: &Fault| json!({"line": f.line, "time": f.time.map(format_ms), "value": f.value, "detail": f.detail});
-        let faults = |l: &FaultList| json!({"total": l.total, "first": l.first.iter().map(fault).collect::<Vec<_>>()});
-        let window = |w: &Window| json!({"start": format_ms(w.start), "end": format_ms(w.end), "start_line": w.start_line, "end_line": w.end_line});
-        let windows = |l: &WindowList| json!({"total": l.total, "total_ms": l.total_ms, "first": l.first.iter().map(window).collect::<Vec<_>>()});
-        let tags: Vec<_> = self.tags.iter().map(|t| json!({
-            "tag": t.tag, "max_age_ms": t.max_age_ms, "points": t.points,
-            "first_time": t.first_time.map(format_ms), "last_time": t.last_time.map(format_ms),
-            "missing": faults(&t.missing), "duplicates": faults(&t.duplicates), 
-            "bad_quality": faults(&t.bad_quality), "uncertain_quality": faults(&t.uncertain_quality),
-            "gaps": windows(&t.gaps), "flat_lines": windows(&t.flat_lines),
-            "missing_runs": windows(&t.missing_runs), 
-            "ticks": {"exact": t.ticks.exact, "interpolated": t.ticks.interpolated, "held": t.ticks.held,
-                      "stale": t.ticks.stale, "missing": t.ticks.missing},
-        })).collect();
-        json!({
-            "path": self.path, "format": format!("{:?}", self.format), "time": format!("{:?}", self.time),
-            "flat_line_ms": self.flat_line_ms, "lines": self.lines, "rows": self.rows,
-            "rows_rejected": self.rows_rejected(), "blank_lines": self.blank_lines,
-            "rows_other_tags": self.rows_other_tags, "bad_time": faults(&self.bad_time),
-            "backwards": faults(&self.backwards), "wrong_fields": faults(&self.wrong_fields),
-            "malformed": faults(&self.malformed), "duplicate_rows": faults(&self.duplicate_rows),
-            "peak_buffered_points": self.peak_buffered_points, "tags": tags,
-        })
+/// A time in ms since the epoch as RFC 3339 text.
+fn time<Se: serde::Serializer>(t: &i64, s: Se) -> Result<Se::Ok, Se::Error> {
+    s.serialize_str(&format_ms(*t))
+}
+
+/// An optional time in ms since the epoch as RFC 3339 text.
+fn opt_time<Se: serde::Serializer>(t: &Option<i64>, s: Se) -> Result<Se::Ok, Se::Error> {
+    match t {
+        Some(t) => s.serialize_str(&format_ms(*t)),
+        None => s.serialize_none(),
     }
 }

@@ -227,6 +227,16 @@ pub struct LevelAgreement {
     pub n: u64,
 }
 
+/// The log reader's statistics with their total of rejected rows.
+#[derive(Clone, Debug, Serialize)]
+pub struct LogOut {
+    /// Everything the reader counted.
+    #[serde(flatten)]
+    pub stats: crate::log::LogStats,
+    /// Rows rejected whole, all reasons.
+    pub rows_rejected: u64,
+}
+
 /// The whole summary.
 #[derive(Clone, Debug, Serialize)]
 pub struct Summary {
@@ -257,7 +267,7 @@ pub struct Summary {
     /// Wall-clock time, s.
     pub wall_seconds: f64,
     /// What the log reader found.
-    pub log_stats: serde_json::Value,
+    pub log_stats: LogOut,
     /// The same, in sentences (for the text).
     #[serde(skip)]
     pub log_lines: Vec<String>,

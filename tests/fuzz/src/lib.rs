@@ -73,7 +73,8 @@ pub fn tag_options() -> Vec<TagOptions> {
                 Interpolation::Linear
             },
             max_age_ms: 120_000,
-            non_negative: i < 2,
+            flow: i < 2,
+            conditioning: Default::default(),
         })
         .collect()
 }

@@ -81,7 +81,7 @@
 //!
 //! ## Device status (NAMUR NE107)
 //!
-//! [`diagnose`] maps the kernel's [`StatusFlags`], the closure alarm, the NIS
+//! [`diagnose`] maps the kernel's [`StatusFlags`](crate::StatusFlags), the closure alarm, the NIS
 //! state, the qualities of the inputs and a function-check switch to one of
 //! the NE107 categories and a [`Quality`] per output value. Its rules are
 //! tabulated in its documentation. [`Quality`] is the signal layer's

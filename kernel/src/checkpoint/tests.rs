@@ -424,7 +424,7 @@ fn another_config_or_version_is_refused_with_its_reason() {
     let mut st2 = MemStorage::new(&mut mem2);
     let info = LAYOUT.save(&v, &mut st2, &mut scratch).unwrap();
     let addr = LAYOUT.slot_addr(info.slot, st2.capacity()).unwrap() as usize;
-    st2.bytes_mut()[addr + 4] = 2;
+    st2.bytes_mut()[addr + 4] = FORMAT_VERSION as u8 + 1;
     let crc = crc32(&st2.bytes()[addr..addr + 24]).to_le_bytes();
     st2.bytes_mut()[addr + 24..addr + 28].copy_from_slice(&crc);
     assert_eq!(

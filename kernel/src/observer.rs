@@ -510,6 +510,16 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         (b, sd)
     }
 
+    /// The bias estimates alone, as [`Observer::biases`] gives them without
+    /// their 1σ (for a caller that corrects flows with them every tick).
+    pub(crate) fn bias_estimates(&self) -> [S; MAX_BIASES] {
+        let mut b = [S::ZERO; MAX_BIASES];
+        for (x, y) in b.iter_mut().zip(self.bias.iter()).take(D - 1 - N) {
+            *x = *y;
+        }
+        b
+    }
+
     /// Number of lab samples waiting for their result.
     pub fn pending_lab_samples(&self) -> usize {
         self.pending.len()

@@ -556,7 +556,7 @@ impl<
         let mut q_in = u.inlet_flows;
         let mut q_out = u.outlet_flows;
         if let Core::Observed(o) = &self.core {
-            let (beta, _) = o.biases();
+            let beta = o.bias_estimates();
             for (target, b) in o.spec().biases.iter().zip(beta.iter()) {
                 let q = match *target {
                     BiasTarget::Inlet(k) => q_in.get_mut(usize::from(k)),

@@ -11,12 +11,15 @@
 //!    * the floating-point work of one tick, counted by running the kernel
 //!      on a scalar type that counts its operations;
 //!    * for the observed scenario (`src/observed.rs`): the plant in `f64`
-//!      with the true flows (its level every minute and its NaOH at the lab
+//!      with the true flows (its level every 10 min and its NaOH at the lab
 //!      draws, which the target needs to make its readings; its NaOH at the
 //!      checkpoints, the "truth" the target's estimate is checked against),
-//!      the observer replayed on the host in `f32` on the same readings (the
-//!      target must match it bit for bit), and the open-loop kernel in `f32`
-//!      fed the same biased readings (what the observer must beat).
+//!      the soft sensor replayed on the host in `f32` on the same raw
+//!      readings through the same `step` (the target must match its
+//!      estimates bit for bit, its counters and its tally of NE107 statuses
+//!      and diagnosis rules exactly), and the open-loop sensor (the same
+//!      conditioning, no observer) in `f32` fed the same readings (what the
+//!      observer must beat).
 //!
 //! Everything here is deterministic: the same kernel source gives the same
 //! file. `cargo build` prints its path with `-vv`; `measure.sh` shows it.
@@ -26,6 +29,7 @@ use std::fmt::Write as _;
 use std::fs;
 use std::path::PathBuf;
 
+use holdup_kernel::diagnostics::{ChiSquareBounds, EXACT_DOF};
 use holdup_kernel::reference;
 
 #[path = "src/scenarios.rs"]
@@ -136,6 +140,7 @@ fn plant() -> Plant {
     for n in 0..OBS_TICKS {
         let u = reference::inputs_at::<f64>(v.time_ms());
         v.step(&u);
+        // The state at `s` s, after tick `n`.
         let s = n + 1;
         if s % LEVEL_KNOT_S == 0 {
             p.level_knots.push(v.level() as f32);
@@ -154,33 +159,49 @@ fn plant() -> Plant {
     p
 }
 
-/// The observer on the host in `f32` on the scenario's readings: the
-/// estimates at every checkpoint and the final counters.
-fn observer_host(p: &Plant) -> (Vec<[f32; 5]>, [u32; 9]) {
-    let mut t = Tracked::<f32>::new().expect("observer");
-    let mut inst = Instruments::new(&p.level_knots, &p.lab_values).expect("instruments");
-    let mut points = Vec::new();
-    for n in 0..OBS_TICKS {
-        let r = inst.readings(n);
-        observe(&mut t, &r);
-        if (n + 1) % OBS_EVERY == 0 {
-            points.push(state5(&t.obs));
-        }
-    }
-    (points, counters(&t))
+/// The NIS bounds of the scenario's sensor, computed on the host in `f64`
+/// and rounded to `f32` (`ChiSquareBounds::new`): written into
+/// `expected.rs` for the target, which takes them as they are.
+fn nis_bounds() -> ChiSquareBounds<f32> {
+    ChiSquareBounds::new(NIS_PROBABILITY).expect("NIS probability")
 }
 
-/// The open-loop kernel in `f32` fed the same (biased, noisy) meter
-/// readings: its NaOH at every checkpoint.
+/// The sensor on the host in `f32` on the scenario's readings, through the
+/// firmware's own `step`: the estimates at every checkpoint, the final
+/// counters and the tally of its reports.
+fn sensor_host(p: &Plant) -> (Vec<[f32; 5]>, [u32; COUNTERS], Tally) {
+    let mut t = Tracked::<f32>::new(nis_bounds()).expect("sensor");
+    let mut inst = Instruments::new(&p.level_knots, &p.lab_values);
+    let mut points = Vec::new();
+    let mut tally = Tally::default();
+    for n in 0..OBS_TICKS {
+        let r = inst.readings(n);
+        let report = step(&mut t, &r);
+        tally.add(n, &report);
+        if (n + 1) % OBS_EVERY == 0 {
+            points.push(state5(&t.sensor));
+        }
+    }
+    (points, counters(&t), tally)
+}
+
+/// The open-loop sensor in `f32` (the reference vessel with the same
+/// conditioning and closure test, no observer) fed the same (biased,
+/// noisy) readings: its NaOH at every checkpoint.
 fn open_loop(p: &Plant) -> Vec<f32> {
-    let mut v = reference::vessel::<f32>().expect("reference vessel");
-    let mut inst = Instruments::new(&p.level_knots, &p.lab_values).expect("instruments");
+    let mut s = RefSensor::<f32>::open_loop_with_bounds(
+        reference::vessel::<f32>().expect("reference vessel"),
+        sensor_spec(),
+        nis_bounds(),
+    )
+    .expect("open-loop sensor");
+    let mut inst = Instruments::new(&p.level_knots, &p.lab_values);
     let mut points = Vec::new();
     for n in 0..OBS_TICKS {
         let r = inst.readings(n);
-        v.step(&r.u);
+        s.tick(r.now, &r.raw);
         if (n + 1) % OBS_EVERY == 0 {
-            points.push(v.concentrations()[LAB_SPECIES]);
+            points.push(s.estimate().concentrations[LAB_SPECIES]);
         }
     }
     points
@@ -197,7 +218,27 @@ fn f32_list(name: &str, doc: &str, len: &str, xs: impl Iterator<Item = f64>) -> 
 
 fn observed_expected(s: &mut String) -> Plant {
     let p = plant();
-    let (host, counts) = observer_host(&p);
+    let (_, z, lower, upper) = nis_bounds().quantiles();
+    let _ = writeln!(
+        s,
+        "/// Observed scenario: the NIS bounds' normal quantile for NIS_PROBABILITY \
+         (`ChiSquareBounds::new` on the host).\npub const NIS_Z: f32 = {};\n",
+        f32_lit(f64::from(z))
+    );
+    assert_eq!(EXACT_DOF, 32);
+    s.push_str(&f32_list(
+        "NIS_LOWER",
+        "Observed scenario: the NIS lower chi-square bounds for 1 … 32 degrees of freedom.",
+        "32",
+        lower.iter().map(|&x| f64::from(x)),
+    ));
+    s.push_str(&f32_list(
+        "NIS_UPPER",
+        "Observed scenario: the NIS upper chi-square bounds for 1 … 32 degrees of freedom.",
+        "32",
+        upper.iter().map(|&x| f64::from(x)),
+    ));
+    let (host, counts, tally) = sensor_host(&p);
     let open = open_loop(&p);
     s.push_str(&f32_list(
         "PLANT_LEVEL",
@@ -229,7 +270,7 @@ fn observed_expected(s: &mut String) -> Plant {
     ));
     let _ = writeln!(
         s,
-        "/// Observed scenario: the host f32 observer's `[V, c₀, c₁, c₂, β]` at every \
+        "/// Observed scenario: the host f32 sensor's `[V, c₀, c₁, c₂, β]` at every \
          checkpoint (the target must match it).\npub const OBS_HOST_F32: [[f32; 5]; OBS_POINTS] = ["
     );
     for x in &host {
@@ -246,8 +287,13 @@ fn observed_expected(s: &mut String) -> Plant {
     s.push_str("];\n\n");
     let _ = writeln!(
         s,
-        "/// Observed scenario: the host observer's counters at the end (see \
-         `observed::counters`).\npub const OBS_HOST_COUNTERS: [u32; 9] = {counts:?};\n"
+        "/// Observed scenario: the host sensor's counters at the end (see \
+         `observed::counters`).\npub const OBS_HOST_COUNTERS: [u32; COUNTERS] = {counts:?};\n"
+    );
+    let _ = writeln!(
+        s,
+        "/// Observed scenario: the host sensor's reports tallied over the shift (see \
+         `observed::Tally`).\npub const OBS_HOST_TALLY: Tally = {tally:?};\n"
     );
     p
 }
@@ -345,10 +391,11 @@ fn expected() -> String {
     let mprk = flops::reference_tick();
     s.push_str(&exact.to_rust("FLOPS_EXACT", "the analytic scenario's tick (exact step)"));
     s.push_str(&mprk.to_rust("FLOPS_REFERENCE", "the reference tick (whole MPRK22)"));
-    let obs = flops::observer_tick(&p.level_knots, &p.lab_values);
+    let obs = flops::sensor_tick(&p.level_knots, &p.lab_values);
     s.push_str(&obs.to_rust(
-        "FLOPS_OBSERVER",
-        "the observer tick (predict, level update, lab events)",
+        "FLOPS_SENSOR",
+        "the sensor's pipeline tick (lab events, conditioning, level update, closure, \
+         NIS, predict, diagnosis)",
     ));
     s
 }

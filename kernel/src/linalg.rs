@@ -88,7 +88,14 @@ pub(crate) fn solve<S: Scalar, const N: usize>(
 ///
 /// The same elimination as [`solve`], kept separate on purpose: the vector
 /// form runs in every Patankar stage on the gateway, and a one-column
-/// matrix there would add copies to the hottest loop.
+/// matrix there would add copies to the hottest loop. Here `a` is factored
+/// first (its rows and `b`'s exchanged as the pivots ask, the multipliers
+/// kept below the diagonal), then each column of `b` is eliminated and
+/// back-substituted on its own, in registers. Every entry of `X` goes
+/// through the same operations in the same order as when `b`'s rows are
+/// updated along with `a`'s (a row's multipliers travel with it through
+/// later exchanges, and the pivot row of a step is final), so the result
+/// is the same to the bit.
 pub(crate) fn solve_matrix<S: Scalar, const N: usize>(
     a: &mut [[S; N]; N],
     b: &mut [[S; N]; N],
@@ -115,32 +122,54 @@ pub(crate) fn solve_matrix<S: Scalar, const N: usize>(
         let d = a[col][col];
         for row in col + 1..m {
             let f = a[row][col] / d;
+            // The multiplier, for the right-hand sides (the eliminated
+            // entry itself is never read again).
+            a[row][col] = f;
             if f != S::ZERO {
-                for k in col..m {
+                for k in col + 1..m {
                     let t = a[col][k];
                     a[row][k] -= f * t;
                 }
-                for k in 0..N {
-                    let t = b[col][k];
-                    b[row][k] -= f * t;
+            }
+        }
+    }
+    // Each right-hand column: elimination, then back substitution.
+    // Non-finite results are caught together at the end: `x·0` is ±0 for a
+    // finite `x` and NaN otherwise, so `nan` is NaN exactly when some entry
+    // is not finite (on failure `b` is garbage, as before).
+    let mut nan = S::ZERO;
+    for c in 0..N {
+        let mut x = [S::ZERO; N];
+        for (xr, row) in x.iter_mut().zip(b.iter()).take(m) {
+            *xr = row[c];
+        }
+        for col in 0..m {
+            for row in col + 1..m {
+                let f = a[row][col];
+                if f != S::ZERO {
+                    let t = x[col];
+                    x[row] -= f * t;
                 }
             }
         }
-    }
-    for row in (0..m).rev() {
-        for c in 0..N {
-            let mut s = b[row][c];
+        for row in (0..m).rev() {
+            let mut s = x[row];
             for k in row + 1..m {
-                s -= a[row][k] * b[k][c];
+                s -= a[row][k] * x[k];
             }
-            let x = s / a[row][row];
-            if !x.is_finite() {
-                return Err(Singular);
-            }
-            b[row][c] = x;
+            let v = s / a[row][row];
+            nan += v * S::ZERO;
+            x[row] = v;
+        }
+        for (xr, row) in x.iter().zip(b.iter_mut()).take(m) {
+            row[c] = *xr;
         }
     }
-    Ok(())
+    if nan.is_finite() {
+        Ok(())
+    } else {
+        Err(Singular)
+    }
 }
 
 /// A square matrix of zeros for scratch work, filled with `−0` rather than
@@ -171,9 +200,69 @@ pub(crate) fn mat_mul<S: Scalar, const N: usize>(a: &[[S; N]; N], b: &[[S; N]; N
     out
 }
 
+/// `a · b` for an `a` whose rows from `m` on are rows of the identity
+/// (the observer's transition: its bias states are random walks). The
+/// first `m` rows are formed as [`mat_mul`] forms them; the others are
+/// `b`'s rows, which is what [`mat_mul`] gives there bit for bit (it skips
+/// the zero entries, and `−0 + 1·x = x`), without the `N²` multiply-adds
+/// and zero tests. Only for such an `a`.
+pub(crate) fn mat_mul_identity_tail<S: Scalar, const N: usize>(
+    a: &[[S; N]; N],
+    b: &[[S; N]; N],
+    m: usize,
+) -> [[S; N]; N] {
+    let m = m.min(N);
+    let mut out = *b;
+    for (out_row, a_row) in out.iter_mut().zip(a.iter()).take(m) {
+        // A row at a time in a local (registers on the Cortex-M4F, where
+        // the matrix in memory costs a load and a store per term).
+        let mut row = [-S::ZERO; N];
+        for (&aik, b_row) in a_row.iter().zip(b.iter()) {
+            if aik != S::ZERO {
+                for (x, &bkj) in row.iter_mut().zip(b_row.iter()) {
+                    *x += aik * bkj;
+                }
+            }
+        }
+        *out_row = row;
+    }
+    out
+}
+
+/// [`left_multiply`] for an `a` whose rows from `m` on are rows of the
+/// identity: rows from `m` on keep their values, as `+0 + x` — what
+/// [`left_multiply`]'s sum `+0 + Σ a_ik·b_kj` gives there bit for bit for
+/// finite entries (a `−0` becomes `+0`) — without the `N²` multiply-adds.
+/// Only for such an `a`.
+pub(crate) fn left_multiply_identity_tail<S: Scalar, const N: usize>(
+    a: &[[S; N]; N],
+    b: &mut [[S; N]; N],
+    m: usize,
+) {
+    let m = m.min(N);
+    for j in 0..N {
+        let mut col = [S::ZERO; N];
+        for (c, row) in col.iter_mut().zip(b.iter()) {
+            *c = row[j];
+        }
+        for (row_b, row_a) in b.iter_mut().zip(a.iter()).take(m) {
+            let mut x = S::ZERO;
+            for (&aik, &ck) in row_a.iter().zip(col.iter()) {
+                x += aik * ck;
+            }
+            row_b[j] = x;
+        }
+        for row_b in b.iter_mut().skip(m) {
+            row_b[j] = S::ZERO + row_b[j];
+        }
+    }
+}
+
 /// `b ← a · b` in place, one column at a time (column `j` of the product
 /// needs only column `j` of `b`): the same sums as [`mat_mul`], without a
-/// second matrix to copy back.
+/// second matrix to copy back. The general form of
+/// [`left_multiply_identity_tail`], kept as its reference in the tests.
+#[cfg(test)]
 pub(crate) fn left_multiply<S: Scalar, const N: usize>(a: &[[S; N]; N], b: &mut [[S; N]; N]) {
     for j in 0..N {
         let mut col = [S::ZERO; N];
@@ -275,8 +364,50 @@ mod tests {
         assert_eq!((z[0][0] + 1.5f32).to_bits(), 1.5f32.to_bits());
     }
 
+    /// The identity-tail products give the general products' bits, signed
+    /// zeros included, for an `a` with identity rows from `m` on (a
+    /// `−0`-filled scratch start, as the observer's transition has).
+    #[test]
+    fn identity_tail_products_match_the_general_ones_bit_for_bit() {
+        let bits = |m: &[[f32; 4]; 4]| m.map(|r| r.map(f32::to_bits));
+        let mut a: [[f32; 4]; 4] = zeros();
+        for (i, row) in a.iter_mut().enumerate() {
+            row[i] = 1.0;
+        }
+        a[0] = [0.9, -0.0, 1e-3, -2e-4];
+        a[1] = [3e-2, 0.7, 0.0, 5e-5];
+        let b = [
+            [2.0f32, -0.0, 1e-7, 3.5],
+            [-0.0, 1.25, -4e-3, 0.0],
+            [1e-7, -4e-3, 0.5, -0.0],
+            [3.5, 0.0, -0.0, 9.0],
+        ];
+        assert_eq!(
+            bits(&mat_mul_identity_tail(&a, &b, 2)),
+            bits(&mat_mul(&a, &b))
+        );
+        let mut general = b;
+        left_multiply(&a, &mut general);
+        let mut tail = b;
+        left_multiply_identity_tail(&a, &mut tail, 2);
+        assert_eq!(bits(&tail), bits(&general));
+        // The general product turns −0 into +0 in identity rows too.
+        assert_eq!(general[3][2].to_bits(), 0.0f32.to_bits());
+    }
+
     #[test]
     fn reports_singular_and_nan() {
+        // The matrix solve: an overflowing back substitution and a NaN
+        // right-hand side are caught, a singular pivot too.
+        let mut a = [[1e-30f32, 0.0], [0.0, 1.0]];
+        let mut x = [[1e30f32, 0.0], [0.0, 1.0]];
+        assert_eq!(solve_matrix(&mut a, &mut x, 2), Err(Singular));
+        let mut a = [[2.0f32, 0.0], [0.0, 1.0]];
+        let mut x = [[1.0f32, f32::NAN], [0.0, 1.0]];
+        assert_eq!(solve_matrix(&mut a, &mut x, 2), Err(Singular));
+        let mut a = [[1.0f32, 2.0], [2.0, 4.0]];
+        let mut x = [[1.0f32, 0.0], [0.0, 1.0]];
+        assert_eq!(solve_matrix(&mut a, &mut x, 2), Err(Singular));
         let mut a = [[1.0f32, 2.0], [2.0, 4.0]];
         let mut b = [1.0, 2.0];
         assert_eq!(solve(&mut a, &mut b, 2), Err(Singular));

@@ -632,6 +632,10 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize> Model<S, N, R, O
 
     /// Rate constants of every reaction direction at temperature `t` (K):
     /// `[forward, reverse]` per reaction (reverse 0 when irreversible).
+    /// Out of line: the vessel's step and the observer's Jacobian each call
+    /// it once a tick, and an inlined copy is ~0.5 KB of a gateway image
+    /// (the call costs ~10 instructions).
+    #[inline(never)]
     pub(crate) fn rate_constants(&self, t: S, out: &mut [[S; 2]; R]) {
         for (k, r) in out.iter_mut().zip(self.reactions.iter()) {
             k[0] = r.forward.constant(t);

@@ -51,7 +51,9 @@
 
 use heapless::Vec;
 
-use crate::linalg::{is_positive_definite, left_multiply, mat_mul, solve_matrix, zeros};
+use crate::linalg::{
+    is_positive_definite, left_multiply_identity_tail, mat_mul_identity_tail, solve_matrix, zeros,
+};
 use crate::model::Inputs;
 use crate::units::Millis;
 use crate::vessel::{Vessel, VesselState};
@@ -267,11 +269,19 @@ fn identity<S: Scalar, const D: usize>() -> [[S; D]; D] {
     m
 }
 
+/// `a · v`, skipping the zero entries of `v` (a measurement row is sparse:
+/// the level's has one nonzero of `D`, a concentration's two). For finite
+/// `a` these are the full sums' bits: each sum starts at `+0` and adds its
+/// terms in the same order, a partial sum is never `−0` (in round to
+/// nearest an exact cancellation gives `+0`), and adding the skipped `±0`
+/// products would change nothing.
 fn mat_vec<S: Scalar, const D: usize>(a: &[[S; D]; D], v: &[S; D]) -> [S; D] {
     let mut out = [S::ZERO; D];
-    for (o, row) in out.iter_mut().zip(a.iter()) {
-        for (x, y) in row.iter().zip(v.iter()) {
-            *o += *x * *y;
+    for (k, &vk) in v.iter().enumerate() {
+        if vk != S::ZERO {
+            for (o, row) in out.iter_mut().zip(a.iter()) {
+                *o += row[k] * vk;
+            }
         }
     }
     out
@@ -284,7 +294,8 @@ fn mat_vec<S: Scalar, const D: usize>(a: &[[S; D]; D], v: &[S; D]) -> [S; D] {
 /// `Φ = [[(I − hF₁₁/2)⁻¹(I + hF₁₁/2), (I − hF₁₁/2)⁻¹·hF₁₂], [0, I]]`: one
 /// `m × m` solve with `D` right-hand columns instead of a `D × D` one.
 /// Returns `(Φ, true)`, or `(I + hF, false)` (explicit Euler) if the solve
-/// fails.
+/// fails. Either way the rows of `Φ` from `m` on are exactly rows of the
+/// identity (zeros and a one), which the covariance products rely on.
 fn transition<S: Scalar, const D: usize>(f: &[[S; D]; D], h: S, m: usize) -> ([[S; D]; D], bool) {
     let m = m.min(D);
     let mut a = identity::<S, D>();
@@ -310,6 +321,34 @@ fn transition<S: Scalar, const D: usize>(f: &[[S; D]; D], h: S, m: usize) -> ([[
         }
     }
     (phi, false)
+}
+
+/// `cov(c_i, c_j)` of the concentrations `c = n/V` to first order, from
+/// the covariance `p` of `[V, n, …]`: the rows of `∂c/∂x` are
+/// `[−c/V, 1/V]`. Out of line: the re-seed forms it `N²` times, and it is
+/// no tick's hot path (inlined copies cost a gateway image ~0.5 KB).
+/// `None` for an index out of range.
+#[inline(never)]
+fn concentration_covariance<S: Scalar, const N: usize, const D: usize>(
+    p: &[[S; D]; D],
+    c: &[S; N],
+    v: S,
+    i: usize,
+    j: usize,
+) -> Option<S> {
+    let at = |r: usize, k: usize| p.get(r).and_then(|row| row.get(k)).copied();
+    let (ci, cj) = (*c.get(i)?, *c.get(j)?);
+    let (p_vv, p_vj, p_iv, p_ij) = (at(0, 0)?, at(0, 1 + j)?, at(1 + i, 0)?, at(1 + i, 1 + j)?);
+    let (ai, bi) = (-ci / v, S::ONE / v);
+    let (aj, bj) = (-cj / v, S::ONE / v);
+    Some(ai * aj * p_vv + ai * bj * p_vj + bi * aj * p_iv + bi * bj * p_ij)
+}
+
+/// True if every entry is finite. Out of line, over a slice: one short loop
+/// in the image for checks off the hot path.
+#[inline(never)]
+fn all_finite<S: Scalar>(xs: &[S]) -> bool {
+    xs.iter().all(|x| x.is_finite())
 }
 
 /// Make a symmetric `p` with positive diagonal positive definite if
@@ -471,6 +510,16 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         (b, sd)
     }
 
+    /// The bias estimates alone, as [`Observer::biases`] gives them without
+    /// their 1σ (for a caller that corrects flows with them every tick).
+    pub(crate) fn bias_estimates(&self) -> [S; MAX_BIASES] {
+        let mut b = [S::ZERO; MAX_BIASES];
+        for (x, y) in b.iter_mut().zip(self.bias.iter()).take(D - 1 - N) {
+            *x = *y;
+        }
+        b
+    }
+
     /// Number of lab samples waiting for their result.
     pub fn pending_lab_samples(&self) -> usize {
         self.pending.len()
@@ -556,18 +605,15 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         let mut c = *u;
         for (j, t) in self.spec.biases.iter().enumerate() {
             let beta = self.bias.get(j).copied().unwrap_or(S::ZERO);
-            match *t {
-                BiasTarget::Inlet(k) => {
-                    if let Some(q) = c.inlet_flows.get_mut(usize::from(k)) {
-                        *q = clean(*q) * (S::ONE - beta);
-                    }
-                }
-                BiasTarget::Outlet(k) => {
-                    if let Some(q) = c.outlet_flows.get_mut(usize::from(k)) {
-                        *q = clean(*q) * (S::ONE - beta);
-                    }
-                }
-                BiasTarget::Unused => {}
+            // One correction for either kind of meter (a copy of it per
+            // arm cost the gateway image ~0.5 KB).
+            let q = match *t {
+                BiasTarget::Inlet(k) => c.inlet_flows.get_mut(usize::from(k)),
+                BiasTarget::Outlet(k) => c.outlet_flows.get_mut(usize::from(k)),
+                BiasTarget::Unused => None,
+            };
+            if let Some(q) = q {
+                *q = clean(*q) * (S::ONE - beta);
             }
         }
         c
@@ -662,14 +708,33 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
                 self.counters.transition_fallbacks.saturating_add(1);
         }
         // Φ P Φᵀ: T = Φ P, then only the upper triangle of T Φᵀ (the result
-        // is symmetric), mirrored.
-        let t = mat_mul(&phi, &self.p);
+        // is symmetric), mirrored. The bias rows of Φ are rows of the
+        // identity (`transition`), so T's bias rows are P's and T Φᵀ's bias
+        // columns are T's (`+0 + t`: the sum the full product forms there,
+        // bit for bit for finite T; a non-finite T reaches a diagonal
+        // entry either way and the prediction is refused below).
+        let m = 1 + N;
+        let t = mat_mul_identity_tail(&phi, &self.p, m);
         let mut p = zeros();
+        // The product is mirrored, so exactly symmetric: the pass that
+        // averaged it with its transpose changed nothing but an entry
+        // beyond half the largest finite value (which it made infinite,
+        // refusing the prediction); `bounded` keeps that rule.
+        let half_max = S::MAX * S::HALF;
+        let mut bounded = true;
         for i in 0..D {
             for j in i..D {
-                let mut x = S::ZERO;
-                for (a, b) in t[i].iter().zip(phi[j].iter()) {
-                    x += *a * *b;
+                let x = if j < m {
+                    let mut x = S::ZERO;
+                    for (a, b) in t[i].iter().zip(phi[j].iter()) {
+                        x += *a * *b;
+                    }
+                    x
+                } else {
+                    S::ZERO + t[i][j]
+                };
+                if i != j {
+                    bounded &= x.abs() <= half_max;
                 }
                 p[i][j] = x;
                 p[j][i] = x;
@@ -682,19 +747,22 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         for j in 1 + N..D {
             p[j][j] += self.spec.bias_noise * h;
         }
-        symmetrize(&mut p);
-        if p.iter().flatten().all(|x| x.is_finite()) {
+        if bounded && (0..D).all(|i| p[i][i].is_finite()) {
             if !make_positive_definite(&mut p) {
                 self.counters.covariance_guarded =
                     self.counters.covariance_guarded.saturating_add(1);
             }
-            self.p = p;
+            // Row by row: a whole-matrix assignment is a `memcpy` call,
+            // ~100 instructions on the Cortex-M4F for these 100 bytes.
+            for (dst, src) in self.p.iter_mut().zip(p.iter()) {
+                *dst = *src;
+            }
         } else {
             self.counters.transition_fallbacks =
                 self.counters.transition_fallbacks.saturating_add(1);
         }
         for pend in self.pending.iter_mut() {
-            left_multiply(&phi, &mut pend.m);
+            left_multiply_identity_tail(&phi, &mut pend.m, m);
         }
         let report = self.vessel.step(&uc);
         // Drop samples whose result is overdue, giving back the information
@@ -783,7 +851,10 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         let ph = mat_vec(&self.p, h);
         let mut s = r;
         for (a, b) in h.iter().zip(ph.iter()) {
-            s += *a * *b;
+            // Zero entries of h skipped, as in `mat_vec` (the same bits).
+            if *a != S::ZERO {
+                s += *a * *b;
+            }
         }
         if !(s > S::ZERO) || !s.is_finite() {
             return None;
@@ -822,10 +893,13 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         }
         // M ← A M = M − K (Hᵀ M), also O(D²).
         for pend in self.pending.iter_mut() {
+            // Hᵀ M by rows of M, zero entries of h skipped (as `mat_vec`).
             let mut hm = [S::ZERO; D];
-            for (c, hmc) in hm.iter_mut().enumerate() {
-                for (row, hi) in pend.m.iter().zip(h.iter()) {
-                    *hmc += *hi * row[c];
+            for (row, hi) in pend.m.iter().zip(h.iter()) {
+                if *hi != S::ZERO {
+                    for (hmc, x) in hm.iter_mut().zip(row.iter()) {
+                        *hmc += *hi * *x;
+                    }
                 }
             }
             for (row, ki) in pend.m.iter_mut().zip(k.iter()) {
@@ -921,14 +995,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         }
         // Rows of J_c = ∂c/∂x: c_i = n_i/V.
         let p = &self.p;
-        let cov_c = |i: usize, j: usize| {
-            let (ai, bi) = (-c[i] / v_old, S::ONE / v_old);
-            let (aj, bj) = (-c[j] / v_old, S::ONE / v_old);
-            ai * aj * p[0][0]
-                + ai * bj * p[0][1 + j]
-                + bi * aj * p[1 + i][0]
-                + bi * bj * p[1 + i][1 + j]
-        };
+        let cov_c = |i: usize, j: usize| concentration_covariance(p, &c, v_old, i, j);
         let cov_cb = |i: usize, b: usize| (-c[i] / v_old) * p[0][b] + p[1 + i][b] / v_old;
         let sigma_v = area * self.spec.level_sigma;
         let var_v = sigma_v * sigma_v;
@@ -938,7 +1005,9 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
             q[0][1 + i] = c[i] * var_v;
             q[1 + i][0] = c[i] * var_v;
             for j in 0..N {
-                let mut pc = cov_c(i, j);
+                let Some(mut pc) = cov_c(i, j) else {
+                    return false;
+                };
                 if i == j {
                     let widen = self.spec.initial_amount_sigma[i] / v_new;
                     pc += widen * widen;
@@ -960,7 +1029,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         for (ni, ci) in n_new.iter_mut().zip(c.iter()) {
             *ni = *ci * v_new;
         }
-        if !q.iter().flatten().all(|x| x.is_finite()) || !n_new.iter().all(|x| x.is_finite()) {
+        if !all_finite(q.as_flattened()) || !all_finite(&n_new) {
             return false;
         }
         // Clamping here only keeps V within the capacity (V(z) is already).
@@ -1113,6 +1182,10 @@ mod tests {
                 }
             }
             solve_matrix(&mut a, &mut full, 5).unwrap();
+            // The bias row is exactly a row of the identity.
+            for j in 0..5 {
+                assert_eq!(phi[4][j], if j == 4 { 1.0 } else { 0.0 });
+            }
             for i in 0..5 {
                 for j in 0..5 {
                     assert!(

@@ -228,7 +228,7 @@ impl<
         vessel: Vessel<S, N, R, O>,
         spec: SensorSpec<S, N, I, O>,
     ) -> Result<Self, Error> {
-        Self::build(Core::Open(vessel), spec)
+        Self::build(Core::Open(vessel), spec, ChiSquareBounds::new)
     }
 
     /// A sensor whose balance is corrected by `observer`.
@@ -242,12 +242,53 @@ impl<
         observer: Observer<S, N, R, O, D, L>,
         spec: SensorSpec<S, N, I, O>,
     ) -> Result<Self, Error> {
-        Self::build(Core::Observed(observer), spec)
+        Self::build(Core::Observed(observer), spec, ChiSquareBounds::new)
     }
 
-    fn build(core: Core<S, N, R, O, D, L>, spec: SensorSpec<S, N, I, O>) -> Result<Self, Error> {
+    /// [`Sensor::open_loop`] with the NIS bounds given, not computed (see
+    /// [`Sensor::observed_with_bounds`]).
+    ///
+    /// Errors: those of [`Sensor::observed_with_bounds`].
+    pub fn open_loop_with_bounds(
+        vessel: Vessel<S, N, R, O>,
+        spec: SensorSpec<S, N, I, O>,
+        bounds: ChiSquareBounds<S>,
+    ) -> Result<Self, Error> {
+        Self::build(Core::Open(vessel), spec, |_| Ok(bounds))
+    }
+
+    /// [`Sensor::observed`] with the NIS bounds given, not computed: for a
+    /// target without double precision, the bounds come from
+    /// [`ChiSquareBounds::new`] run on the host and
+    /// [`ChiSquareBounds::from_quantiles`] (the sensor is then bit for bit
+    /// the one [`Sensor::observed`] builds on the host).
+    ///
+    /// Errors: [`Error::ConfigProbability`] when the bounds are for another
+    /// probability than `spec.nis_probability`; otherwise those of
+    /// [`Sensor::observed`].
+    pub fn observed_with_bounds(
+        observer: Observer<S, N, R, O, D, L>,
+        spec: SensorSpec<S, N, I, O>,
+        bounds: ChiSquareBounds<S>,
+    ) -> Result<Self, Error> {
+        Self::build(Core::Observed(observer), spec, |_| Ok(bounds))
+    }
+
+    /// The sensor with the NIS bounds `bounds(spec.nis_probability)` (built
+    /// after the channels, so that errors come in the same order whichever
+    /// way the bounds are made).
+    fn build(
+        core: Core<S, N, R, O, D, L>,
+        spec: SensorSpec<S, N, I, O>,
+        bounds: impl FnOnce(S) -> Result<ChiSquareBounds<S>, Error>,
+    ) -> Result<Self, Error> {
         let channels = Channels::new(&spec.channels)?;
-        let nis = NisMonitor::new(ChiSquareBounds::new(spec.nis_probability)?)?;
+        let bounds = bounds(spec.nis_probability)?;
+        // `!=` (not bits through f64): no double precision on the target.
+        if bounds.probability() != spec.nis_probability {
+            return Err(Error::ConfigProbability);
+        }
+        let nis = NisMonitor::new(bounds)?;
         if let Some(c) = &spec.closure {
             let model = match &core {
                 Core::Open(v) => v.model(),
@@ -519,7 +560,7 @@ impl<
         let mut q_in = u.inlet_flows;
         let mut q_out = u.outlet_flows;
         if let Core::Observed(o) = &self.core {
-            let (beta, _) = o.biases();
+            let beta = o.bias_estimates();
             for (target, b) in o.spec().biases.iter().zip(beta.iter()) {
                 let q = match *target {
                     BiasTarget::Inlet(k) => q_in.get_mut(usize::from(k)),

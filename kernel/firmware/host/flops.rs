@@ -216,17 +216,19 @@ pub fn reference_tick() -> TickFlops {
     f
 }
 
-/// The observed scenario's tick: predict, level update, lab event (the
-/// readings are made outside the counted part, in `f32`, and widened).
-pub fn observer_tick(level_knots: &[f32], lab_values: &[f32]) -> TickFlops {
-    use super::observed::{observe, Instruments, Tracked, OBS_TICKS};
-    let mut t = Tracked::<Counted>::new().expect("observer");
-    let mut inst = Instruments::new(level_knots, lab_values).expect("instruments");
+/// The observed scenario's pipeline tick: lab event, then `Sensor::tick`
+/// (the readings are made outside the counted part, in `f32`, and widened).
+pub fn sensor_tick(level_knots: &[f32], lab_values: &[f32]) -> TickFlops {
+    use super::observed::{step, Instruments, Tracked, NIS_PROBABILITY, OBS_TICKS};
+    use holdup_kernel::diagnostics::ChiSquareBounds;
+    let bounds = ChiSquareBounds::new(Counted::of(f64::from(NIS_PROBABILITY))).expect("bounds");
+    let mut t = Tracked::<Counted>::new(bounds).expect("sensor");
+    let mut inst = Instruments::new(level_knots, lab_values);
     let mut f = TickFlops::new();
     for n in 0..OBS_TICKS {
         let r = inst.readings(n).cast::<Counted>();
         take();
-        observe(&mut t, &r);
+        step(&mut t, &r);
         f.record(take());
     }
     f

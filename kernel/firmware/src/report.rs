@@ -246,6 +246,22 @@ impl Report {
         defmt::println!("{=str}: {=u32} {=str}", name, x, unit);
     }
 
+    /// Named counts: `name: a / b / c`.
+    #[inline(never)]
+    pub fn counts(&mut self, name: &str, xs: &[u32]) {
+        #[cfg(not(feature = "defmt"))]
+        {
+            let mut line = Line::new();
+            line.str(name).str(":");
+            for (i, x) in xs.iter().enumerate() {
+                line.str(if i == 0 { " " } else { " / " }).u32(*x);
+            }
+            self.emit(&mut line);
+        }
+        #[cfg(feature = "defmt")]
+        defmt::println!("{=str}: {=[?]}", name, xs);
+    }
+
     /// Cost of a tick over a run: min, mean, max.
     #[inline(never)]
     pub fn cost(&mut self, name: &str, unit: &str, ticks: u32, min: u32, mean: f32, max: u32) {

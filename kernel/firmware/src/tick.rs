@@ -1,28 +1,32 @@
 //! The fixed-tick loop and what it runs.
 //!
 //! [`Estimator`] is one tick of whatever the gateway estimates: the
-//! open-loop kernel tick ([`holdup_kernel::Vessel::step`]) or the observer's
-//! tick ([`crate::observed::observe`]: predict, level update, lab event);
-//! both are measured by the same loop.
+//! open-loop kernel tick ([`holdup_kernel::Vessel::step`]) or the soft
+//! sensor's pipeline tick ([`crate::observed::step`]: lab event, then
+//! `Sensor::tick`); both are measured by the same loop.
 //!
 //! [`run`] is the gateway's main loop: take the tick's inputs, step, measure
-//! the step's cost, wait out the rest of the tick with an
+//! the step's cost, hand its report on, wait out the rest of the tick with an
 //! [`embedded_hal::delay::DelayNs`]. On a board that delay sleeps; on the
 //! emulator it is [`VirtualDelay`], which only adds up the time asked for, so
 //! the 8 h shift runs in seconds.
 
 use embedded_hal::delay::DelayNs;
-use holdup_kernel::{Inputs, Scalar, StatusFlags, StepReport, Vessel};
+use holdup_kernel::{Inputs, Scalar, SensorReport, StatusFlags, StepReport, Vessel};
 
 use crate::meter::{self, Meter};
-use crate::observed::{observe, Lab, Readings, Tracked};
+use crate::observed::{step, Lab, Tick, Tracked};
 
 /// One tick of an estimator with inputs `U`.
 pub trait Estimator<U> {
+    /// What a tick reports.
+    type Report;
     /// Advance one tick.
-    fn tick(&mut self, u: &U) -> StepReport<f32>;
+    fn tick(&mut self, u: &U) -> Self::Report;
+    /// The kernel's status flags in a report.
+    fn flags(report: &Self::Report) -> StatusFlags;
     /// Whether the coming tick belongs to the estimator's dearer kind
-    /// (counted apart in [`Stats`]): the observer with a lab sample pending.
+    /// (counted apart in [`Stats`]): the sensor with a lab sample pending.
     fn busy(&self) -> bool {
         false
     }
@@ -36,23 +40,37 @@ pub trait Estimator<U> {
 impl<const N: usize, const R: usize, const O: usize, const I: usize> Estimator<Inputs<f32, N, I, O>>
     for Vessel<f32, N, R, O>
 {
+    type Report = StepReport<f32>;
+
     #[inline(always)]
     fn tick(&mut self, u: &Inputs<f32, N, I, O>) -> StepReport<f32> {
         self.step(u)
     }
+
+    fn flags(report: &StepReport<f32>) -> StatusFlags {
+        report.flags
+    }
 }
 
-impl Estimator<Readings<f32>> for Tracked<f32> {
+impl Estimator<Tick<f32>> for Tracked<f32> {
+    type Report = SensorReport<f32, 3>;
+
     #[inline(always)]
-    fn tick(&mut self, r: &Readings<f32>) -> StepReport<f32> {
-        observe(self, r)
+    fn tick(&mut self, r: &Tick<f32>) -> SensorReport<f32, 3> {
+        step(self, r)
+    }
+
+    fn flags(report: &SensorReport<f32, 3>) -> StatusFlags {
+        report.step.flags
     }
 
     fn busy(&self) -> bool {
-        self.obs.pending_lab_samples() > 0
+        self.sensor
+            .observer()
+            .is_some_and(|o| o.pending_lab_samples() > 0)
     }
 
-    fn sample_stack(&self, r: &Readings<f32>) -> bool {
+    fn sample_stack(&self, r: &Tick<f32>) -> bool {
         r.lab != Lab::None
     }
 }
@@ -93,6 +111,21 @@ pub struct Stats {
 }
 
 impl Stats {
+    /// Add one tick's cost. Out of line: one copy for the four scenarios'
+    /// loops (it runs outside the measured window).
+    #[inline(never)]
+    fn record(&mut self, cost: u32, busy: bool, flags: StatusFlags) {
+        self.ticks += 1;
+        self.min = self.min.min(cost);
+        self.max = self.max.max(cost);
+        self.sum += u64::from(cost);
+        self.flags |= flags;
+        if busy {
+            self.busy_ticks += 1;
+            self.busy_sum += u64::from(cost);
+        }
+    }
+
     /// Mean cost per tick (in `f32`, relative error ~1e-7: no software
     /// `f64` in the image).
     pub fn mean(&self) -> f32 {
@@ -121,15 +154,16 @@ const PAINT_MARGIN: usize = 64;
 /// One tick, not inlined, so that its stack use starts at the caller's
 /// stack pointer.
 #[inline(never)]
-fn step_once<U, E: Estimator<U>>(est: &mut E, u: &U) -> StepReport<f32> {
+fn step_once<U, E: Estimator<U>>(est: &mut E, u: &U) -> E::Report {
     est.tick(u)
 }
 
 /// Run `ticks` ticks of `period_ns` each. `inputs(n)` gives tick `n`'s
-/// inputs (from 0); `checkpoint(n, est)` is called after tick `n` (from 1)
-/// when `n % every == 0`, and that tick's stack is measured (painting is
-/// outside the measured window), as is the stack of every tick for which
-/// [`Estimator::sample_stack`] holds.
+/// inputs (from 0); `report(n, r)` gets tick `n`'s report (from 0, outside
+/// the measured window); `checkpoint(n, est)` is called after tick `n`
+/// (from 1) when `n % every == 0`, and that tick's stack is measured
+/// (painting is outside the measured window), as is the stack of every tick
+/// for which [`Estimator::sample_stack`] holds.
 #[allow(clippy::too_many_arguments)]
 pub fn run<U, E, M, D>(
     est: &mut E,
@@ -139,6 +173,7 @@ pub fn run<U, E, M, D>(
     ticks: u32,
     every: u32,
     mut inputs: impl FnMut(u32) -> U,
+    mut report: impl FnMut(u32, &E::Report),
     mut checkpoint: impl FnMut(u32, &E),
 ) -> Stats
 where
@@ -176,19 +211,12 @@ where
             let touched = meter::lowest_touched(low, top);
             st.stack = st.stack.max(sp.saturating_sub(touched));
         }
+        report(n, &rep);
         if checkpoint_due {
             checkpoint(n + 1, est);
         }
         let cost = meter.units(t0, t1).saturating_sub(overhead);
-        st.ticks += 1;
-        st.min = st.min.min(cost);
-        st.max = st.max.max(cost);
-        st.sum += u64::from(cost);
-        st.flags |= rep.flags;
-        if busy {
-            st.busy_ticks += 1;
-            st.busy_sum += u64::from(cost);
-        }
+        st.record(cost, busy, E::flags(&rep));
         let spent = cost.saturating_mul(meter.ns_per_unit());
         delay.delay_ns(period_ns.saturating_sub(spent));
     }
@@ -222,7 +250,9 @@ pub fn ulps(a: f32, b: f32) -> u32 {
     x.max(y) - x.min(y)
 }
 
-/// The reference concentrations as `[V, c₀, c₁, c₂]`.
+/// The reference concentrations as `[V, c₀, c₁, c₂]` (out of line: called
+/// at checkpoints by two scenarios).
+#[inline(never)]
 pub fn state4<const R: usize, const O: usize>(v: &Vessel<f32, 3, R, O>) -> [f32; 4] {
     let c = v.concentrations();
     [v.volume(), c[0], c[1], c[2]]

@@ -99,8 +99,9 @@ impl Reasons {
     pub fn names(self) -> impl Iterator<Item = &'static str> {
         RULES
             .into_iter()
-            .filter(move |r| self.contains(r.reason))
-            .map(|r| r.name)
+            .zip(RULE_NAMES)
+            .filter(move |(r, _)| self.contains(r.reason))
+            .map(|(_, name)| name)
     }
 }
 
@@ -165,7 +166,6 @@ pub struct Diagnosis<const N: usize> {
 #[derive(Clone, Copy)]
 pub(super) struct Rule {
     pub(super) reason: Reasons,
-    pub(super) name: &'static str,
     status: DeviceStatus,
     holdup: Quality,
     concentrations: Quality,
@@ -175,14 +175,12 @@ pub(super) struct Rule {
 
 const fn rule(
     reason: Reasons,
-    name: &'static str,
     status: DeviceStatus,
     holdup: Quality,
     concentrations: Quality,
 ) -> Rule {
     Rule {
         reason,
-        name,
         status,
         holdup,
         concentrations,
@@ -190,15 +188,9 @@ const fn rule(
     }
 }
 
-const fn species_rule(
-    reason: Reasons,
-    name: &'static str,
-    status: DeviceStatus,
-    concentrations: Quality,
-) -> Rule {
+const fn species_rule(reason: Reasons, status: DeviceStatus, concentrations: Quality) -> Rule {
     Rule {
         reason,
-        name,
         status,
         holdup: Quality::Good,
         concentrations,
@@ -211,120 +203,85 @@ use Quality::{Bad, Good, Uncertain};
 
 /// The table of [`diagnose`], in bit order (keep in step with its docs).
 pub(super) const RULES: [Rule; 19] = [
-    rule(Reasons::NUMERIC_FAULT, "numeric_fault", Failure, Good, Bad),
-    rule(Reasons::FLOW_BAD, "flow_bad", Failure, Uncertain, Bad),
-    rule(
-        Reasons::NO_HOLDUP_SOURCE,
-        "no_holdup_source",
-        Failure,
-        Bad,
-        Bad,
-    ),
-    species_rule(Reasons::FEED_BAD, "feed_bad", Failure, Bad),
-    rule(
-        Reasons::FUNCTION_CHECK,
-        "function_check",
-        FunctionCheck,
-        Uncertain,
-        Uncertain,
-    ),
-    rule(
-        Reasons::LOW_HOLDUP,
-        "low_holdup",
-        OutOfSpecification,
-        Good,
-        Uncertain,
-    ),
-    rule(
-        Reasons::OVERFLOW,
-        "overflow",
-        OutOfSpecification,
-        Uncertain,
-        Uncertain,
-    ),
+    rule(Reasons::NUMERIC_FAULT, Failure, Good, Bad),
+    rule(Reasons::FLOW_BAD, Failure, Uncertain, Bad),
+    rule(Reasons::NO_HOLDUP_SOURCE, Failure, Bad, Bad),
+    species_rule(Reasons::FEED_BAD, Failure, Bad),
+    rule(Reasons::FUNCTION_CHECK, FunctionCheck, Uncertain, Uncertain),
+    rule(Reasons::LOW_HOLDUP, OutOfSpecification, Good, Uncertain),
+    rule(Reasons::OVERFLOW, OutOfSpecification, Uncertain, Uncertain),
     rule(
         Reasons::OUTLET_LIMITED,
-        "outlet_limited",
         OutOfSpecification,
         Uncertain,
         Uncertain,
     ),
-    rule(
-        Reasons::CLOSURE,
-        "closure",
-        OutOfSpecification,
-        Uncertain,
-        Uncertain,
-    ),
+    rule(Reasons::CLOSURE, OutOfSpecification, Uncertain, Uncertain),
     rule(
         Reasons::NIS_OVERCONFIDENT,
-        "nis_overconfident",
         OutOfSpecification,
         Uncertain,
         Uncertain,
     ),
     rule(
         Reasons::INPUT_NOT_FINITE,
-        "input_not_finite",
         OutOfSpecification,
         Good,
         Uncertain,
     ),
     rule(
         Reasons::TEMPERATURE_BAD,
-        "temperature_bad",
         OutOfSpecification,
         Good,
         Uncertain,
     ),
-    rule(
-        Reasons::LEVEL_BAD,
-        "level_bad",
-        MaintenanceRequired,
-        Uncertain,
-        Good,
-    ),
+    rule(Reasons::LEVEL_BAD, MaintenanceRequired, Uncertain, Good),
     rule(
         Reasons::FLOW_UNCERTAIN,
-        "flow_uncertain",
         MaintenanceRequired,
         Uncertain,
         Uncertain,
     ),
     rule(
         Reasons::LEVEL_UNCERTAIN,
-        "level_uncertain",
         MaintenanceRequired,
         Uncertain,
         Good,
     ),
     rule(
         Reasons::TEMPERATURE_UNCERTAIN,
-        "temperature_uncertain",
         MaintenanceRequired,
         Good,
         Uncertain,
     ),
-    species_rule(
-        Reasons::FEED_UNCERTAIN,
-        "feed_uncertain",
-        MaintenanceRequired,
-        Uncertain,
-    ),
-    rule(
-        Reasons::NIS_TOO_CAUTIOUS,
-        "nis_too_cautious",
-        MaintenanceRequired,
-        Good,
-        Good,
-    ),
-    rule(
-        Reasons::INPUT_NEGATIVE,
-        "input_negative",
-        MaintenanceRequired,
-        Good,
-        Good,
-    ),
+    species_rule(Reasons::FEED_UNCERTAIN, MaintenanceRequired, Uncertain),
+    rule(Reasons::NIS_TOO_CAUTIOUS, MaintenanceRequired, Good, Good),
+    rule(Reasons::INPUT_NEGATIVE, MaintenanceRequired, Good, Good),
+];
+
+/// The rules' names, in the table's (bit) order: [`Reasons::names`]. Apart
+/// from [`RULES`] so that an image that never prints them (a gateway
+/// reporting the bits) carries neither these strings nor their pointers.
+pub(super) const RULE_NAMES: [&str; 19] = [
+    "numeric_fault",
+    "flow_bad",
+    "no_holdup_source",
+    "feed_bad",
+    "function_check",
+    "low_holdup",
+    "overflow",
+    "outlet_limited",
+    "closure",
+    "nis_overconfident",
+    "input_not_finite",
+    "temperature_bad",
+    "level_bad",
+    "flow_uncertain",
+    "level_uncertain",
+    "temperature_uncertain",
+    "feed_uncertain",
+    "nis_too_cautious",
+    "input_negative",
 ];
 
 /// Map the diagnostic inputs to an NE107 status and output qualities.
@@ -363,14 +320,20 @@ pub(super) const RULES: [Rule; 19] = [
 /// (declare a function check during start-up if the outputs should say so).
 pub fn diagnose<const N: usize>(inputs: &DiagnosticInputs<N>) -> Diagnosis<N> {
     let f = inputs.flags;
-    let any_feed = |q: Quality| inputs.feed.contains(&q);
+    let (mut feed_bad, mut feed_uncertain) = (false, false);
+    for q in inputs.feed.iter() {
+        feed_bad |= *q == Bad;
+        feed_uncertain |= *q == Uncertain;
+    }
+    // The conditions as a set of bits, in the table's (bit) order; most
+    // ticks fire nothing and then no rule is looked at.
     let conditions = [
         f.contains(StatusFlags::NUMERIC_FAULT),
         inputs.flow == Bad,
         inputs.flow == Bad && inputs.level != Good,
-        any_feed(Bad),
+        feed_bad,
         inputs.function_check,
-        f.contains(StatusFlags::EMPTY) || f.contains(StatusFlags::NEAR_EMPTY),
+        f.intersects(StatusFlags::EMPTY | StatusFlags::NEAR_EMPTY),
         f.contains(StatusFlags::OVERFLOW),
         f.contains(StatusFlags::OUTLET_LIMITED),
         inputs.closure.is_some(),
@@ -381,33 +344,40 @@ pub fn diagnose<const N: usize>(inputs: &DiagnosticInputs<N>) -> Diagnosis<N> {
         inputs.flow == Uncertain,
         inputs.level == Uncertain,
         inputs.temperature == Uncertain,
-        any_feed(Uncertain),
+        feed_uncertain,
         inputs.nis == NisState::TooCautious,
         f.contains(StatusFlags::INPUT_NEGATIVE),
     ];
+    let mut fired = 0u32;
+    for (bit, &c) in conditions.iter().enumerate() {
+        fired |= u32::from(c) << bit;
+    }
     let mut out = Diagnosis {
         status: DeviceStatus::Good,
         holdup: Good,
         concentrations: [Good; N],
         reasons: Reasons::NONE,
     };
-    for (rule, &fired) in RULES.iter().zip(conditions.iter()) {
-        if !fired {
-            continue;
-        }
+    // What the rules that are not per species set every concentration to.
+    let mut all = Good;
+    let mut rest = fired;
+    while rest != 0 {
+        let bit = rest.trailing_zeros();
+        rest &= rest - 1;
+        let Some(rule) = RULES.get(bit as usize) else {
+            break;
+        };
         out.reasons.insert(rule.reason);
         out.status = out.status.max(rule.status);
         out.holdup = Quality::worst(out.holdup, rule.holdup);
         if !rule.per_species {
-            for c in out.concentrations.iter_mut() {
-                *c = Quality::worst(*c, rule.concentrations);
-            }
+            all = Quality::worst(all, rule.concentrations);
         }
     }
     // Species rules: each species' feed quality lowers its own
     // concentration (Bad → Bad, Uncertain → Uncertain).
     for (c, &q) in out.concentrations.iter_mut().zip(inputs.feed.iter()) {
-        *c = Quality::worst(*c, q);
+        *c = Quality::worst(all, q);
     }
     out
 }

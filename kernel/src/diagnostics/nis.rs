@@ -135,6 +135,56 @@ impl<S: Scalar> ChiSquareBounds<S> {
         })
     }
 
+    /// Bounds from numbers computed elsewhere, for a target without double
+    /// precision: [`ChiSquareBounds::new`] run on a host (a firmware's build
+    /// script) and its [`ChiSquareBounds::quantiles`] compiled in. Nothing is
+    /// computed, so the target's image carries no `f64` arithmetic and no
+    /// `erfc` for this; the bounds are bit for bit the host's.
+    ///
+    /// # Errors
+    /// [`Error::ConfigProbability`] unless `0 < probability < 1`;
+    /// [`Error::ConfigNonFinite`] for a NaN or infinite quantile;
+    /// [`Error::ConfigNonPositive`] unless `z > 0` and
+    /// `0 ≤ lower[ν] < upper[ν]` for every `ν`.
+    pub fn from_quantiles(
+        probability: S,
+        z: S,
+        lower: [S; EXACT_DOF],
+        upper: [S; EXACT_DOF],
+    ) -> Result<Self, Error> {
+        if !(probability > S::ZERO && probability < S::ONE) {
+            return Err(Error::ConfigProbability);
+        }
+        let all_finite = z.is_finite()
+            && lower.iter().all(|x| x.is_finite())
+            && upper.iter().all(|x| x.is_finite());
+        if !all_finite {
+            return Err(Error::ConfigNonFinite);
+        }
+        let ordered = lower
+            .iter()
+            .zip(upper.iter())
+            .all(|(lo, hi)| *lo >= S::ZERO && lo < hi);
+        if !(z > S::ZERO) || !ordered {
+            return Err(Error::ConfigNonPositive);
+        }
+        Ok(Self {
+            probability,
+            z,
+            lower,
+            upper,
+        })
+    }
+
+    /// The numbers that define the bounds, as [`ChiSquareBounds::from_quantiles`]
+    /// takes them: the probability, the upper normal quantile `z` (used by
+    /// Wilson–Hilferty above [`EXACT_DOF`]), and the lower and upper bounds
+    /// for `ν = 1 …` [`EXACT_DOF`].
+    #[allow(clippy::type_complexity)]
+    pub fn quantiles(&self) -> (S, S, [S; EXACT_DOF], [S; EXACT_DOF]) {
+        (self.probability, self.z, self.lower, self.upper)
+    }
+
     /// The probability the bounds were built for.
     pub fn probability(&self) -> S {
         self.probability

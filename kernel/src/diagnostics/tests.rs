@@ -486,6 +486,35 @@ fn chi_square_bounds_against_statrs() {
     assert!(b.upper(u32::MAX).is_finite());
 }
 
+/// Bounds rebuilt from their quantiles are the same bounds (what a target
+/// without double precision compiles in); numbers that cannot be chi-square
+/// bounds are refused, each with its error.
+#[test]
+fn bounds_from_quantiles_round_trip_and_are_checked() {
+    let b = ok(ChiSquareBounds::new(0.999f32));
+    let (p, z, lo, hi) = b.quantiles();
+    assert_eq!(ChiSquareBounds::from_quantiles(p, z, lo, hi), Ok(b));
+    for nu in [1, 7, 32, 120, 5000] {
+        let c = ok(ChiSquareBounds::from_quantiles(p, z, lo, hi));
+        assert_eq!(c.lower(nu).to_bits(), b.lower(nu).to_bits());
+        assert_eq!(c.upper(nu).to_bits(), b.upper(nu).to_bits());
+    }
+    let from = |p: f32, z: f32, lo: [f32; EXACT_DOF], hi: [f32; EXACT_DOF]| {
+        ChiSquareBounds::from_quantiles(p, z, lo, hi).err()
+    };
+    assert_eq!(from(1.0, z, lo, hi), Some(Error::ConfigProbability));
+    assert_eq!(from(f32::NAN, z, lo, hi), Some(Error::ConfigProbability));
+    assert_eq!(from(p, f32::NAN, lo, hi), Some(Error::ConfigNonFinite));
+    let mut inf = hi;
+    inf[31] = f32::INFINITY;
+    assert_eq!(from(p, z, lo, inf), Some(Error::ConfigNonFinite));
+    assert_eq!(from(p, 0.0, lo, hi), Some(Error::ConfigNonPositive));
+    assert_eq!(from(p, z, hi, lo), Some(Error::ConfigNonPositive));
+    let mut negative = lo;
+    negative[0] = -1e-3;
+    assert_eq!(from(p, z, negative, hi), Some(Error::ConfigNonPositive));
+}
+
 /// Consistent filter (innovations exactly chi-square with 2 degrees of
 /// freedom per update, W = 20, P = 0.95): each side flags in 2.5 % of the
 /// windows. Innovations √2 times too large: overconfident; √2 times too
@@ -810,7 +839,7 @@ fn ne107_precedence_and_worst_quality() {
         ['F', 'C', 'S', 'M', '-']
     );
     // Rule table and bits stay in step.
-    for (n, r) in RULES.iter().enumerate() {
-        assert_eq!(r.reason.bits(), 1 << n, "rule {n} ({})", r.name);
+    for (n, (r, name)) in RULES.iter().zip(RULE_NAMES).enumerate() {
+        assert_eq!(r.reason.bits(), 1 << n, "rule {n} ({name})");
     }
 }

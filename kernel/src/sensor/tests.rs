@@ -289,6 +289,46 @@ fn state_round_trip_continues_bit_for_bit() {
     assert_eq!(open.check_state(&state), Err(Error::CheckpointInvalidState));
 }
 
+/// A sensor built with NIS bounds made elsewhere (the quantiles of the
+/// host's `ChiSquareBounds::new`, as a firmware compiles them in) runs bit
+/// for bit like one that computes them, through five closed NIS windows;
+/// bounds for another probability are refused.
+#[test]
+fn given_nis_bounds_give_the_same_sensor() {
+    let b = ChiSquareBounds::<f64>::new(0.999).unwrap();
+    let (p, z, lo, hi) = b.quantiles();
+    let given = ChiSquareBounds::from_quantiles(p, z, lo, hi).unwrap();
+    let mut a = Tank::observed(observer(50.0), spec(true)).unwrap();
+    let mut c = Tank::observed_with_bounds(observer(50.0), spec(true), given).unwrap();
+    let mut rng = Rng(9);
+    for n in 0..600u64 {
+        let r = readings(
+            Q * (1.0 + 0.01 * rng.normal()),
+            Q,
+            V0 / AREA + LEVEL_SIGMA * rng.normal(),
+        );
+        assert_eq!(a.tick(n * 1000, &r), c.tick(n * 1000, &r));
+    }
+    assert_eq!(a.nis().report(), c.nis().report());
+    assert_eq!(a.nis().report().dof, NIS_WINDOW as u32);
+    let other = ChiSquareBounds::new(0.99).unwrap();
+    assert_eq!(
+        Tank::observed_with_bounds(observer(50.0), spec(true), other).err(),
+        Some(Error::ConfigProbability)
+    );
+    assert_eq!(
+        Sensor::<f64, 1, 0, 1, 1, 3, 2>::open_loop_with_bounds(vessel(50.0), spec(true), other)
+            .err(),
+        Some(Error::ConfigProbability)
+    );
+    assert!(Sensor::<f64, 1, 0, 1, 1, 3, 2>::open_loop_with_bounds(
+        vessel(50.0),
+        spec(true),
+        given
+    )
+    .is_ok());
+}
+
 #[test]
 fn configuration_errors_are_values() {
     let mut no_level = spec(true);

@@ -52,12 +52,23 @@
 use heapless::Vec;
 
 use crate::linalg::{
-    is_positive_definite, left_multiply_identity_tail, mat_mul_identity_tail, solve_matrix, zeros,
+    is_positive_definite, left_multiply_identity_tail, mat_mul_identity_tail, zeros,
 };
 use crate::model::Inputs;
 use crate::units::Millis;
 use crate::vessel::{Vessel, VesselState};
 use crate::{Error, Scalar, StepReport};
+
+mod covariance;
+mod lab;
+#[cfg(test)]
+mod tests;
+
+use covariance::{
+    all_finite, clean, concentration_covariance, make_positive_definite, mat_vec, symmetrize,
+    transition,
+};
+use lab::Pending;
 
 /// Most flow meters whose bias is estimated.
 pub const MAX_BIASES: usize = 4;
@@ -161,29 +172,6 @@ pub struct ObserverCounters {
     pub reseeds: u32,
 }
 
-/// A lab sample waiting for its result.
-#[derive(Clone, Copy, Debug, PartialEq)]
-#[cfg_attr(
-    feature = "serde",
-    derive(serde::Serialize, serde::Deserialize),
-    serde(bound(
-        serialize = "S: serde::Serialize",
-        deserialize = "S: serde::Deserialize<'de> + Copy + Default"
-    ))
-)]
-struct Pending<S, const D: usize> {
-    id: u32,
-    drawn_ms: Millis,
-    predicted: S,
-    /// `P_s Hᵀ` (prior at the draw).
-    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
-    ph: [S; D],
-    /// Innovation variance `H P_s Hᵀ + r`.
-    s: S,
-    #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays::matrix"))]
-    m: [[S; D]; D],
-}
-
 /// An observer's state without its configuration: the vessel's balance
 /// state, the bias estimates, the covariance, the pending lab samples and
 /// the counters. What a checkpoint stores ([`Observer::state`],
@@ -241,156 +229,6 @@ pub struct Observer<
     p: [[S; D]; D],
     pending: Vec<Pending<S, D>, L>,
     counters: ObserverCounters,
-}
-
-fn clean<S: Scalar>(x: S) -> S {
-    if x.is_finite() && x > S::ZERO {
-        x
-    } else {
-        S::ZERO
-    }
-}
-
-fn symmetrize<S: Scalar, const D: usize>(p: &mut [[S; D]; D]) {
-    for i in 0..D {
-        for j in i + 1..D {
-            let m = S::HALF * (p[i][j] + p[j][i]);
-            p[i][j] = m;
-            p[j][i] = m;
-        }
-    }
-}
-
-fn identity<S: Scalar, const D: usize>() -> [[S; D]; D] {
-    let mut m = zeros();
-    for (i, row) in m.iter_mut().enumerate() {
-        row[i] = S::ONE;
-    }
-    m
-}
-
-/// `a · v`, skipping the zero entries of `v` (a measurement row is sparse:
-/// the level's has one nonzero of `D`, a concentration's two). For finite
-/// `a` these are the full sums' bits: each sum starts at `+0` and adds its
-/// terms in the same order, a partial sum is never `−0` (in round to
-/// nearest an exact cancellation gives `+0`), and adding the skipped `±0`
-/// products would change nothing.
-fn mat_vec<S: Scalar, const D: usize>(a: &[[S; D]; D], v: &[S; D]) -> [S; D] {
-    let mut out = [S::ZERO; D];
-    for (k, &vk) in v.iter().enumerate() {
-        if vk != S::ZERO {
-            for (o, row) in out.iter_mut().zip(a.iter()) {
-                *o += row[k] * vk;
-            }
-        }
-    }
-    out
-}
-
-/// The transition `Φ = (I − hF/2)⁻¹(I + hF/2)` (Cayley: second order, and
-/// bounded for any `h` when `F` is stable) of a Jacobian whose rows from
-/// `m` on are zero (the biases are random walks). With
-/// `F = [[F₁₁, F₁₂], [0, 0]]` split there,
-/// `Φ = [[(I − hF₁₁/2)⁻¹(I + hF₁₁/2), (I − hF₁₁/2)⁻¹·hF₁₂], [0, I]]`: one
-/// `m × m` solve with `D` right-hand columns instead of a `D × D` one.
-/// Returns `(Φ, true)`, or `(I + hF, false)` (explicit Euler) if the solve
-/// fails. Either way the rows of `Φ` from `m` on are exactly rows of the
-/// identity (zeros and a one), which the covariance products rely on.
-fn transition<S: Scalar, const D: usize>(f: &[[S; D]; D], h: S, m: usize) -> ([[S; D]; D], bool) {
-    let m = m.min(D);
-    let mut a = identity::<S, D>();
-    let mut phi = identity::<S, D>();
-    for i in 0..m {
-        for j in 0..D {
-            let x = S::HALF * h * f[i][j];
-            if j < m {
-                a[i][j] -= x;
-                phi[i][j] += x;
-            } else {
-                phi[i][j] = x + x;
-            }
-        }
-    }
-    if solve_matrix(&mut a, &mut phi, m).is_ok() {
-        return (phi, true);
-    }
-    let mut phi = identity::<S, D>();
-    for i in 0..D {
-        for j in 0..D {
-            phi[i][j] += h * f[i][j];
-        }
-    }
-    (phi, false)
-}
-
-/// `cov(c_i, c_j)` of the concentrations `c = n/V` to first order, from
-/// the covariance `p` of `[V, n, …]`: the rows of `∂c/∂x` are
-/// `[−c/V, 1/V]`. Out of line: the re-seed forms it `N²` times, and it is
-/// no tick's hot path (inlined copies cost a gateway image ~0.5 KB).
-/// `None` for an index out of range.
-#[inline(never)]
-fn concentration_covariance<S: Scalar, const N: usize, const D: usize>(
-    p: &[[S; D]; D],
-    c: &[S; N],
-    v: S,
-    i: usize,
-    j: usize,
-) -> Option<S> {
-    let at = |r: usize, k: usize| p.get(r).and_then(|row| row.get(k)).copied();
-    let (ci, cj) = (*c.get(i)?, *c.get(j)?);
-    let (p_vv, p_vj, p_iv, p_ij) = (at(0, 0)?, at(0, 1 + j)?, at(1 + i, 0)?, at(1 + i, 1 + j)?);
-    let (ai, bi) = (-ci / v, S::ONE / v);
-    let (aj, bj) = (-cj / v, S::ONE / v);
-    Some(ai * aj * p_vv + ai * bj * p_vj + bi * aj * p_iv + bi * bj * p_ij)
-}
-
-/// True if every entry is finite. Out of line, over a slice: one short loop
-/// in the image for checks off the hot path.
-#[inline(never)]
-fn all_finite<S: Scalar>(xs: &[S]) -> bool {
-    xs.iter().all(|x| x.is_finite())
-}
-
-/// Make a symmetric `p` with positive diagonal positive definite if
-/// rounding has left it slightly indefinite (states of very different
-/// scales in `f32`). Returns `true` if `p` was already positive definite.
-///
-/// The loading is relative to each variance, `P + α·diag(P)`, which is
-/// `D^{1/2}(C + αI)D^{1/2}` for the correlation matrix `C`: it lifts the
-/// smallest eigenvalue of `C` by `α` without swamping a small variance
-/// with a large one. `α` starts at `64ε` and doubles at most 16 times; if
-/// that is not enough the correlations are dropped (the diagonal alone is
-/// positive definite). Bounded: at most 17 Cholesky attempts of `D³/6`.
-fn make_positive_definite<S: Scalar, const D: usize>(p: &mut [[S; D]; D]) -> bool {
-    if is_positive_definite(p) {
-        return true;
-    }
-    let floor = S::MIN_POSITIVE;
-    let mut diag = [S::ZERO; D];
-    for i in 0..D {
-        diag[i] = p[i][i].max(floor);
-        p[i][i] = diag[i];
-    }
-    let mut alpha = S::of(64.0) * S::EPSILON;
-    for _ in 0..16 {
-        let mut q = *p;
-        for i in 0..D {
-            q[i][i] = diag[i] * (S::ONE + alpha);
-        }
-        if is_positive_definite(&q) {
-            *p = q;
-            return false;
-        }
-        alpha *= S::TWO;
-    }
-    for i in 0..D {
-        for j in 0..D {
-            if i != j {
-                p[i][j] = S::ZERO;
-            }
-        }
-    }
-    false
 }
 
 impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, const L: usize>
@@ -788,38 +626,6 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         report
     }
 
-    /// Remove pending sample `i`, the last one taking its place (the order
-    /// of `Vec::swap_remove`), written with a swap of two distinct elements
-    /// and a pop: `swap_remove` moves with `ptr::copy`, which brings the
-    /// general `memmove` (1.5 KiB) into the Cortex-M4F image for this alone.
-    fn take_pending(&mut self, i: usize) -> Option<Pending<S, D>> {
-        let last = self.pending.len().checked_sub(1)?;
-        if i < last {
-            let (head, tail) = self.pending.split_at_mut(last);
-            if let (Some(a), Some(b)) = (head.get_mut(i), tail.first_mut()) {
-                core::mem::swap(a, b);
-            }
-        } else if i > last {
-            return None;
-        }
-        self.pending.pop()
-    }
-
-    /// Undo the covariance reduction anticipated for a pending sample that
-    /// will not be fused: `P += u uᵀ/S`, `u = M P_s Hᵀ`.
-    fn release(&mut self, p: &Pending<S, D>) {
-        let u = mat_vec(&p.m, &p.ph);
-        for i in 0..D {
-            for j in 0..D {
-                self.p[i][j] += u[i] * u[j] / p.s;
-            }
-        }
-        symmetrize(&mut self.p);
-        if !make_positive_definite(&mut self.p) {
-            self.counters.covariance_guarded = self.counters.covariance_guarded.saturating_add(1);
-        }
-    }
-
     /// Apply `x += k·ν` to the vessel state and the biases.
     fn apply_correction(&mut self, k: &[S; D], innovation: S) {
         let mut n = self.vessel.amounts();
@@ -1084,118 +890,5 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         let out = self.scalar_update(&h, c - predicted, sigma * sigma);
         self.count_composition(out);
         out
-    }
-
-    /// A lab sample of `species` is drawn now, to be analysed with standard
-    /// deviation `sigma` (mol/m³); its result will be given to
-    /// [`Observer::lab_result`] with the same `id`. The covariance counts the
-    /// analysis from now on (see the module documentation).
-    ///
-    /// Errors: [`Error::LabQueueFull`] when `L` samples are already pending
-    /// (the sample is not recorded), [`Error::LabSampleNotObservable`] when
-    /// the vessel is near empty, the species index is out of range or the
-    /// sigma is not a positive number.
-    pub fn lab_drawn(&mut self, id: u32, species: usize, sigma: S) -> Result<(), Error> {
-        let Some((h, predicted)) = self.concentration_row(species) else {
-            return Err(Error::LabSampleNotObservable);
-        };
-        if self.pending.is_full() {
-            return Err(Error::LabQueueFull);
-        }
-        let r = sigma * sigma;
-        let Some(Ok((_, ph, s))) = self.covariance_update(&h, r, None) else {
-            return Err(Error::LabSampleNotObservable);
-        };
-        self.pending
-            .push(Pending {
-                id,
-                drawn_ms: self.vessel.time_ms(),
-                predicted,
-                ph,
-                s,
-                m: identity(),
-            })
-            .map_err(|_| Error::LabQueueFull)
-    }
-
-    /// The result `c` (mol/m³) of the lab sample `id` has arrived: fuse it
-    /// at the time it was drawn, carried to now.
-    ///
-    /// Errors: [`Error::LabSampleNotPending`] when no sample `id` is waiting
-    /// (never drawn, already fused, or dropped after the maximum age).
-    pub fn lab_result(&mut self, id: u32, c: S) -> Result<Update<S>, Error> {
-        let Some(pos) = self.pending.iter().position(|p| p.id == id) else {
-            return Err(Error::LabSampleNotPending);
-        };
-        let Some(pend) = self.take_pending(pos) else {
-            return Err(Error::LabSampleNotPending);
-        };
-        let nu = c - pend.predicted;
-        if !nu.is_finite() {
-            self.release(&pend);
-            self.counters.skipped = self.counters.skipped.saturating_add(1);
-            return Ok(Update::Skipped);
-        }
-        let nis = nu * nu / pend.s;
-        if !(nis <= self.spec.gate) {
-            self.release(&pend);
-            let out = Update::Rejected { nis };
-            self.count_composition(out);
-            return Ok(out);
-        }
-        let u = mat_vec(&pend.m, &pend.ph);
-        let mut k = [S::ZERO; D];
-        for (ki, ui) in k.iter_mut().zip(u.iter()) {
-            *ki = *ui / pend.s;
-        }
-        self.apply_correction(&k, nu);
-        let out = Update::Accepted { nis };
-        self.count_composition(out);
-        Ok(out)
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    /// The block transition equals the Cayley transform solved as one
-    /// `D × D` system (the definition), for a Jacobian with a zero bias row.
-    #[test]
-    fn block_transition_matches_the_full_cayley_solve() {
-        let f: [[f64; 5]; 5] = [
-            [-2e-4, 0.0, 0.0, 0.0, -1.7e-4],
-            [3e-3, -4e-4, -2e-5, 0.0, -1.6e-2],
-            [1e-3, -1e-5, -5e-4, 0.0, 0.0],
-            [-2e-3, 1e-5, 2e-5, -3e-4, 0.0],
-            [0.0, 0.0, 0.0, 0.0, 0.0],
-        ];
-        for h in [1.0, 60.0, 3600.0] {
-            let (phi, cayley) = transition(&f, h, 4);
-            assert!(cayley);
-            let mut a = identity::<f64, 5>();
-            let mut full = identity::<f64, 5>();
-            for i in 0..5 {
-                for j in 0..5 {
-                    a[i][j] -= 0.5 * h * f[i][j];
-                    full[i][j] += 0.5 * h * f[i][j];
-                }
-            }
-            solve_matrix(&mut a, &mut full, 5).unwrap();
-            // The bias row is exactly a row of the identity.
-            for j in 0..5 {
-                assert_eq!(phi[4][j], if j == 4 { 1.0 } else { 0.0 });
-            }
-            for i in 0..5 {
-                for j in 0..5 {
-                    assert!(
-                        (phi[i][j] - full[i][j]).abs() <= 1e-14 * (1.0 + full[i][j].abs()),
-                        "h {h}: Φ[{i}][{j}] {} against {}",
-                        phi[i][j],
-                        full[i][j]
-                    );
-                }
-            }
-        }
     }
 }

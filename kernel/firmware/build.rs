@@ -78,14 +78,18 @@ fn exact_closed_form(t: f64) -> [f64; 3] {
     })
 }
 
-/// The reference scenario in scalar `S`: `[V, c₀, c₁, c₂]` at every checkpoint.
-fn reference_run<S: holdup_kernel::Scalar>() -> Vec<[f64; 4]> {
-    let mut v = reference::vessel::<S>().expect("reference vessel");
+/// `[V, c₀, c₁, c₂]` of `v` every `every` ticks over `ticks` ticks of the
+/// reference inputs.
+fn run_points<S: holdup_kernel::Scalar>(
+    mut v: reference::ReferenceVessel<S>,
+    ticks: u32,
+    every: u32,
+) -> Vec<[f64; 4]> {
     let mut points = Vec::new();
-    for n in 1..=REF_TICKS {
+    for n in 1..=ticks {
         let u = reference::inputs_at::<S>(v.time_ms());
         v.step(&u);
-        if n % REF_EVERY == 0 {
+        if n % every == 0 {
             let c = v.concentrations();
             points.push([
                 v.volume().to_f64(),
@@ -98,24 +102,22 @@ fn reference_run<S: holdup_kernel::Scalar>() -> Vec<[f64; 4]> {
     points
 }
 
+/// The reference scenario in scalar `S`: `[V, c₀, c₁, c₂]` at every checkpoint.
+fn reference_run<S: holdup_kernel::Scalar>() -> Vec<[f64; 4]> {
+    run_points(
+        reference::vessel::<S>().expect("reference vessel"),
+        REF_TICKS,
+        REF_EVERY,
+    )
+}
+
 /// The stiff scenario in scalar `S`: `[V, c₀, c₁, c₂]` at every checkpoint.
 fn stiff_run<S: holdup_kernel::Scalar>() -> Vec<[f64; 4]> {
-    let mut v = stiff_vessel::<S>().expect("stiff vessel");
-    let mut points = Vec::new();
-    for n in 1..=STIFF_TICKS {
-        let u = reference::inputs_at::<S>(v.time_ms());
-        v.step(&u);
-        if n % STIFF_EVERY == 0 {
-            let c = v.concentrations();
-            points.push([
-                v.volume().to_f64(),
-                c[0].to_f64(),
-                c[1].to_f64(),
-                c[2].to_f64(),
-            ]);
-        }
-    }
-    points
+    run_points(
+        stiff_vessel::<S>().expect("stiff vessel"),
+        STIFF_TICKS,
+        STIFF_EVERY,
+    )
 }
 
 /// The observed scenario's plant: the reference vessel in `f64` with the

@@ -972,27 +972,33 @@ fn identified_bias_is_named_not_alarmed() {
     );
 }
 
-#[test]
-fn dropout_recovers_within_fifteen_minutes() {
-    let e = checked(Trial::Dropout);
-    print_run(Trial::Dropout);
+/// The recovery checks of a fault of `len` s from `at` s: the errors
+/// against the true plant from 15 minutes after its end (within 1 %), and
+/// the ±3σ coverage outside the fault window (the fault and the 15 minutes
+/// after it) and the start-up (99 %). Prints the tables; returns the misses.
+fn recovery_misses(trial: Trial, name: &str, at: usize, len: usize) -> Misses {
+    let e = checked(trial);
+    print_run(trial);
     let mut misses = Misses::default();
-    // The bad cell is −0.05 m³/s in the log's m³/h (1 h = 3600 s).
-    let cell: f64 = DROPOUT_CELL.parse().expect("a number");
-    assert!((cell / 3600.0 + 0.05).abs() < 1e-15, "{cell}");
-    let end = DROPOUT_AT_S + DROPOUT_S;
-    let fault = DROPOUT_AT_S..end + SETTLE_S;
+    let end = at + len;
+    let fault = at..end + SETTLE_S;
     let outside = |s: usize| s >= STARTUP_S && !fault.contains(&s);
-    // Recovery, measured from the end of the dropout.
+    // Recovery, measured from the end of the fault.
     let figs: Vec<Figures> = (0..3).map(|q| figures(e, q, end, &outside)).collect();
     let rows: Vec<(&str, &Figures)> = NAMES.iter().copied().zip(figs.iter()).collect();
-    table("dropout trial, from the end of the dropout", end, &rows);
-    // The checks: errors from 15 min after the end, coverage outside the
-    // fault window (the dropout and the 15 min after it) and the start-up.
+    table(
+        &format!("{name} trial, from the end of the fault"),
+        end,
+        &rows,
+    );
     let after: Vec<Figures> = (0..3).map(|q| figures(e, q, fault.end, &outside)).collect();
     let cover: Vec<Figures> = (0..3).map(|q| figures(e, q, 0, &outside)).collect();
     let rows: Vec<(&str, &Figures)> = NAMES.iter().copied().zip(after.iter()).collect();
-    table("dropout trial, after the fault window", fault.end, &rows);
+    table(
+        &format!("{name} trial, after the fault window"),
+        fault.end,
+        &rows,
+    );
     eprintln!(
         "  ±3σ coverage outside the fault window {}..{} and the first hour: {}",
         hms(fault.start),
@@ -1023,6 +1029,15 @@ fn dropout_recovers_within_fifteen_minutes() {
             )
         });
     }
+    misses
+}
+
+#[test]
+fn dropout_recovers_within_fifteen_minutes() {
+    // The bad cell is −0.05 m³/s in the log's m³/h (1 h = 3600 s).
+    let cell: f64 = DROPOUT_CELL.parse().expect("a number");
+    assert!((cell / 3600.0 + 0.05).abs() < 1e-15, "{cell}");
+    let misses = recovery_misses(Trial::Dropout, "dropout", DROPOUT_AT_S, DROPOUT_S);
     misses.assert_none("dropout");
     // The summary reports the 600 rejected values on FI-402 as one window.
     let out = input_events(Trial::Dropout, "FI-402");
@@ -1038,33 +1053,7 @@ fn dropout_recovers_within_fifteen_minutes() {
 /// fault, with the truth inside ±3σ for 99 % of the ticks outside it.
 #[test]
 fn stuck_meter_is_recovered_by_reseeding() {
-    let e = checked(Trial::Stuck);
-    print_run(Trial::Stuck);
-    let mut misses = Misses::default();
-    let end = STUCK_AT_S + STUCK_S;
-    let fault = STUCK_AT_S..end + SETTLE_S;
-    let outside = |s: usize| s >= STARTUP_S && !fault.contains(&s);
-    let figs: Vec<Figures> = (0..3).map(|q| figures(e, q, end, &outside)).collect();
-    let rows: Vec<(&str, &Figures)> = NAMES.iter().copied().zip(figs.iter()).collect();
-    table("stuck trial, from the end of the fault", end, &rows);
-    let after: Vec<Figures> = (0..3).map(|q| figures(e, q, fault.end, &outside)).collect();
-    let cover: Vec<Figures> = (0..3).map(|q| figures(e, q, 0, &outside)).collect();
-    for ((name, f), c) in NAMES.iter().zip(after.iter()).zip(cover.iter()) {
-        // Against the independent RK4 integration of the true plant (above).
-        misses.check(f.max_rel <= REL_TOL, || {
-            format!(
-                "{name}: max relative error {:.4} % at {} after the fault window (target 1 %)",
-                100.0 * f.max_rel,
-                hms(f.worst_s)
-            )
-        });
-        misses.check(c.coverage >= COVERAGE, || {
-            format!(
-                "{name}: truth inside ±3σ at {:.3} % of ticks outside the fault window (target 99 %)",
-                100.0 * c.coverage
-            )
-        });
-    }
+    let misses = recovery_misses(Trial::Stuck, "stuck", STUCK_AT_S, STUCK_S);
     misses.assert_none("stuck");
     let s = summary(Trial::Stuck);
     let reseeds = s["estimator"]["reseeds"].as_u64().unwrap_or(0);

@@ -81,6 +81,16 @@ pub enum ReplayError {
         /// The kernel's message.
         message: &'static str,
     },
+    /// A tag's conditioning is not valid once its role's defaults are
+    /// added (for example a `max` below the default `min`).
+    Conditioning {
+        /// The configuration file.
+        path: PathBuf,
+        /// The tag.
+        tag: String,
+        /// What is wrong, with the range in SI.
+        message: String,
+    },
     /// The log holds no usable data.
     EmptyLog(PathBuf),
     /// Writing an output failed.
@@ -102,6 +112,9 @@ impl fmt::Display for ReplayError {
                 "{}: the configuration is not accepted by the kernel: {message}",
                 path.display()
             ),
+            ReplayError::Conditioning { path, tag, message } => {
+                write!(f, "{}: [tags.\"{tag}\"]: {message}", path.display())
+            }
             ReplayError::EmptyLog(p) => write!(
                 f,
                 "{}: the log holds no valid timestamped data to replay",
@@ -233,6 +246,7 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
         }
     });
     let frame: Frame<S, N> = sources.frame(first, t0);
+    assemble::check_channels(plant)?;
     let Sensors { main, open } =
         assemble::sensors::<S, N, D>(plant, t_init).map_err(kernel_err(plant))?;
     let bias_names: Vec<String> = plant

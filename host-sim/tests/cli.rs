@@ -810,6 +810,34 @@ fn bad_config_names_file_line_and_key() {
     assert!(err.contains("diameter"), "{err}");
 }
 
+/// A tag's own limit that contradicts its role's default (a flow `max`
+/// below the default `min`, −1 % of three capacities an hour) is refused
+/// before the replay, naming the tag and the range it would have had.
+#[test]
+fn impossible_conditioning_names_the_tag() {
+    let dir = out_dir("badtag");
+    std::fs::create_dir_all(&dir).expect("mkdir");
+    let cfg = dir.join("plant.toml");
+    std::fs::write(&cfg, step_config() + "\n[tags.\"FI-1\"]\nmax = -1\n").expect("write");
+    let o = holdup(&[
+        "replay",
+        "--config",
+        cfg.to_str().expect("utf-8"),
+        "--log",
+        fixture("step").join("log.csv").to_str().expect("utf-8"),
+        "--out",
+        dir.join("out").to_str().expect("utf-8"),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("plant.toml: [tags.\"FI-1\"]: signal valid range"),
+        "{err}"
+    );
+    assert!(err.contains("set both min and max"), "{err}");
+    assert!(!dir.join("out").join("estimates.csv").exists());
+}
+
 #[test]
 fn demo_writes_everything_into_its_folder() {
     let out = out_dir("demo");

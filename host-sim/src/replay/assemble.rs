@@ -19,12 +19,13 @@
 use heapless::Vec as HVec;
 use holdup_kernel::observer::MAX_BIASES;
 use holdup_kernel::sensor::ClosureSpec;
-use holdup_kernel::signal::{SignalKind, SignalSpec, StuckSpec};
+use holdup_kernel::signal::{Signal, SignalKind, SignalSpec, StuckSpec};
 use holdup_kernel::{
     BiasTarget, ChannelSpecs, Error, Geometry, Observer, ObserverSpec, Scalar, Sensor, SensorSpec,
 };
 
-use crate::plant::{OutletKind, Plant, Signal, TagOptions};
+use super::ReplayError;
+use crate::plant::{OutletKind, Plant, Signal as Source, TagOptions};
 use crate::to_kernel::{self, I, O, R};
 
 /// Pending lab samples the replay's observer can hold.
@@ -61,7 +62,7 @@ fn options<'a>(plant: &'a Plant, tag: &str) -> Option<&'a TagOptions> {
 }
 
 /// The conditioning of one signal; `None` for a constant.
-fn channel<S: Scalar>(plant: &Plant, signal: &Signal, role: Role) -> Option<SignalSpec<S>> {
+fn channel<S: Scalar>(plant: &Plant, signal: &Source, role: Role) -> Option<SignalSpec<S>> {
     let tag = signal.tag()?;
     let c = options(plant, tag)
         .map(|o| o.conditioning.clone())
@@ -93,6 +94,48 @@ fn channel<S: Scalar>(plant: &Plant, signal: &Signal, role: Role) -> Option<Sign
         hold_max_ms: c.hold_ms,
         clamp_negative: role == Role::Flow && max >= 0.0,
     })
+}
+
+/// Every tagged signal of `plant` with its role.
+fn tagged(plant: &Plant) -> Vec<(&Source, Role)> {
+    let mut out = Vec::new();
+    for inlet in &plant.inlets {
+        out.push((&inlet.flow, Role::Flow));
+        out.extend(inlet.feed.iter().map(|f| (f, Role::Feed)));
+    }
+    for outlet in &plant.outlets {
+        if let OutletKind::Measured(s) = &outlet.kind {
+            out.push((s, Role::Flow));
+        }
+    }
+    out.push((&plant.temperature, Role::Temperature));
+    out.extend(plant.level.iter().map(|l| (l, Role::Level)));
+    out.retain(|(s, _)| s.tag().is_some());
+    out
+}
+
+/// Check every tag's conditioning as it will be built (its own limits with
+/// its role's defaults for the rest): the first refused one, named by its
+/// tag, with the range in SI.
+pub fn check_channels(plant: &Plant) -> Result<(), ReplayError> {
+    for (signal, role) in tagged(plant) {
+        let Some(spec) = channel::<f64>(plant, signal, role) else {
+            continue;
+        };
+        if let Err(e) = Signal::new(spec) {
+            return Err(ReplayError::Conditioning {
+                path: plant.path.clone(),
+                tag: signal.tag().unwrap_or_default().to_string(),
+                message: format!(
+                    "{} (valid range with the role's defaults: {} to {} in SI units; set both min and max)",
+                    e.message(),
+                    spec.min,
+                    spec.max
+                ),
+            });
+        }
+    }
+    Ok(())
 }
 
 /// The conditioning of every input of `plant`.

@@ -76,6 +76,9 @@ pub enum Error {
     /// A lab sample cannot be recorded: the vessel is near empty or the
     /// species does not exist.
     LabSampleNotObservable,
+    /// The plant needs more registers than one table of the Modbus link
+    /// holds (`modbus::MAX_REGISTERS`).
+    LinkMapTooLarge,
     /// A signal specification number (scaling, range, rate, stuck
     /// tolerance) is NaN or infinite.
     SignalNonFinite,
@@ -188,6 +191,9 @@ impl Error {
             }
             Error::LabSampleNotObservable => {
                 "lab sample cannot be recorded: vessel near empty or unknown species"
+            }
+            Error::LinkMapTooLarge => {
+                "the plant needs more Modbus registers than one table of the link holds (too many streams or species)"
             }
             Error::SignalNonFinite => "signal configuration value is not a finite number",
             Error::SignalScaleSpan => {

@@ -55,6 +55,7 @@
 //! | [`observer`] | extended Kalman filter: level, analyser and delayed lab corrections, meter biases |
 //! | [`diagnostics`] | balance-closure CUSUM, NIS model-mismatch test, NAMUR NE107 status and output qualities |
 //! | [`sensor`] | the soft sensor as one type: conditioning of every input, the balance or the observer, recovery, closure, NIS, NE107 — what the firmware and the replay drive |
+//! | `modbus` | (feature `modbus`) the PLC link: one register map, and the sensor served over Modbus RTU or TCP |
 //! | [`status`] | status flags and what a tick reports |
 //! | [`storage`] | byte storage for checkpoints: trait, RAM, SPI FRAM driver |
 //! | [`crc`] | CRC-32 for checkpoint records |
@@ -155,6 +156,8 @@ pub mod error;
 pub mod geometry;
 pub mod integrate;
 mod linalg;
+#[cfg(feature = "modbus")]
+pub mod modbus;
 pub mod model;
 pub mod observer;
 pub mod reference;

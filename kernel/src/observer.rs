@@ -852,6 +852,61 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         true
     }
 
+    /// Reset the concentration of `species` to `c` (mol/m³) with standard
+    /// deviation `sigma`, bypassing the innovation gate: for a lab result
+    /// that the operator knows is right while the estimate is not (the
+    /// vessel was drained and refilled, a batch was dosed by hand).
+    ///
+    /// * The amount becomes `c·V`; the holdup and the other amounts keep
+    ///   their estimates.
+    /// * The new concentration is independent of everything else: with
+    ///   `nᵢ = c·V` to first order, `Var(nᵢ) = c²·Var(V) + V²·σ²` and
+    ///   `Cov(nᵢ, x) = c·Cov(V, x)` for every other state `x`.
+    /// * Pending lab samples are dropped (counted as expired): their stored
+    ///   sensitivities refer to the state before the reset.
+    ///
+    /// Returns `false` (nothing changed) for a species out of range, a
+    /// negative or non-finite `c`, a `sigma` that is not a positive number,
+    /// or a vessel near empty. `O(D)`, no solve.
+    pub fn reset_concentration(&mut self, species: usize, c: S, sigma: S) -> bool {
+        let v = self.vessel.volume();
+        if species >= N
+            || !c.is_finite()
+            || c < S::ZERO
+            || !(sigma > S::ZERO)
+            || !sigma.is_finite()
+            || self.vessel.is_near_empty()
+            || !(v > S::ZERO)
+        {
+            return false;
+        }
+        let i = 1 + species;
+        let mut n = self.vessel.amounts();
+        n[species] = c * v;
+        let mut p = self.p;
+        for k in 0..D {
+            if k != i {
+                let x = c * p[0][k];
+                p[i][k] = x;
+                p[k][i] = x;
+            }
+        }
+        p[i][i] = c * c * p[0][0] + v * v * sigma * sigma;
+        if !all_finite(p.as_flattened()) || !n[species].is_finite() {
+            return false;
+        }
+        let _ = self.vessel.set_state(v, &n);
+        symmetrize(&mut p);
+        if !make_positive_definite(&mut p) {
+            self.counters.covariance_guarded = self.counters.covariance_guarded.saturating_add(1);
+        }
+        self.p = p;
+        let dropped = u32::try_from(self.pending.len()).unwrap_or(u32::MAX);
+        self.pending.clear();
+        self.counters.lab_expired = self.counters.lab_expired.saturating_add(dropped);
+        true
+    }
+
     /// Measurement row of the concentration of `species` at the current
     /// mean, and the predicted value; `None` when near empty.
     fn concentration_row(&self, species: usize) -> Option<([S; D], S)> {

@@ -45,7 +45,7 @@
 
 mod channels;
 #[cfg(test)]
-mod tests;
+pub(crate) mod tests;
 
 pub(crate) use channels::Channels;
 pub use channels::{Channel, ChannelSpecs, InputQuality, Readings};
@@ -437,6 +437,25 @@ impl<
     /// Errors: [`Error::SensorNotObserved`] without an observer.
     pub fn analyser(&mut self, species: usize, c: S, sigma: S) -> Result<Update<S>, Error> {
         Ok(self.observer_mut()?.update_concentration(species, c, sigma))
+    }
+
+    /// Reset the concentration of `species` to `c` (mol/m³, 1σ `sigma`):
+    /// see [`Observer::reset_concentration`]; for an open-loop sensor the
+    /// amount becomes `c·V` (no uncertainty to set). Returns whether the
+    /// state changed.
+    pub fn reset_concentration(&mut self, species: usize, c: S, sigma: S) -> bool {
+        match &mut self.core {
+            Core::Observed(o) => o.reset_concentration(species, c, sigma),
+            Core::Open(v) => {
+                let vol = v.volume();
+                let mut n = v.amounts();
+                if species >= N || !c.is_finite() || c < S::ZERO || !(vol > S::ZERO) {
+                    return false;
+                }
+                n[species] = c * vol;
+                v.set_state(vol, &n)
+            }
+        }
     }
 
     /// One tick from `now` (ms, the caller's clock; rising) with the

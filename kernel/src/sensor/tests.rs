@@ -17,19 +17,19 @@ const Q: f64 = 1e-3;
 const V0: f64 = 10.0;
 const LEVEL_SIGMA: f64 = 0.003;
 
-fn vessel(c0: f64) -> Vessel<f64, 1, 0, 1> {
+pub(crate) fn vessel<S: Scalar>(c0: f64) -> Vessel<S, 1, 0, 1> {
     let mut outlets = HVec::new();
     outlets.push(Outlet::Measured).unwrap();
     let model = Model::new(VesselSpec {
         geometry: Geometry::new(Shape::VerticalCylinder {
-            diameter: 2.0,
-            height: 5.0,
+            diameter: S::of(2.0),
+            height: S::of(5.0),
             bottom: Bottom::Flat,
         })
         .unwrap(),
         outlets,
         reactions: HVec::new(),
-        min_holdup: 0.01,
+        min_holdup: S::of(0.01),
         tick_ms: 1000,
         method: Method::Auto,
     })
@@ -37,28 +37,28 @@ fn vessel(c0: f64) -> Vessel<f64, 1, 0, 1> {
     Vessel::new(
         model,
         &InitialState {
-            volume: V0,
-            concentrations: [c0],
-            temperature: 293.15,
+            volume: S::of(V0),
+            concentrations: [S::of(c0)],
+            temperature: S::of(293.15),
         },
     )
     .unwrap()
 }
 
-fn observer(c0: f64) -> Observer<f64, 1, 0, 1, 3, 2> {
+pub(crate) fn observer<S: Scalar>(c0: f64) -> Observer<S, 1, 0, 1, 3, 2> {
     let mut biases = HVec::new();
     biases.push(BiasTarget::Inlet(0)).unwrap();
     Observer::new(
         vessel(c0),
         ObserverSpec {
-            level_sigma: LEVEL_SIGMA,
-            volume_noise: 1e-8,
-            amount_noise: [1e-4],
-            bias_noise: 1e-12,
-            initial_volume_sigma: 0.01,
-            initial_amount_sigma: [2.0],
-            initial_bias_sigma: 0.05,
-            gate: 9.0,
+            level_sigma: S::of(LEVEL_SIGMA),
+            volume_noise: S::of(1e-8),
+            amount_noise: [S::of(1e-4)],
+            bias_noise: S::of(1e-12),
+            initial_volume_sigma: S::of(0.01),
+            initial_amount_sigma: [S::of(2.0)],
+            initial_bias_sigma: S::of(0.05),
+            gate: S::of(9.0),
             lab_max_age_ms: 3 * 3600 * 1000,
             biases,
         },
@@ -66,38 +66,41 @@ fn observer(c0: f64) -> Observer<f64, 1, 0, 1, 3, 2> {
     .unwrap()
 }
 
-fn flow_signal() -> SignalSpec<f64> {
+fn engineering<S: Scalar>(
+    min: f64,
+    max: f64,
+    hold_max_ms: u64,
+    clamp_negative: bool,
+) -> SignalSpec<S> {
     SignalSpec {
         kind: SignalKind::Engineering,
-        min: -1e-4,
-        max: 0.01,
+        min: S::of(min),
+        max: S::of(max),
         max_rate_per_s: None,
         stuck: None,
-        hold_max_ms: 600_000,
-        clamp_negative: true,
+        hold_max_ms,
+        clamp_negative,
     }
 }
 
-fn spec(closure: bool) -> SensorSpec<f64, 1, 1, 1> {
+fn flow_signal<S: Scalar>() -> SignalSpec<S> {
+    engineering(-1e-4, 0.01, 600_000, true)
+}
+
+/// Flow meters on the inlet and the outlet, a level transmitter, and the
+/// closure test when `closure`.
+pub(crate) fn spec<S: Scalar>(closure: bool) -> SensorSpec<S, 1, 1, 1> {
     let mut s = SensorSpec::plain();
     s.channels.inlet_flows = [Some(flow_signal())];
     s.channels.outlet_flows = [Some(flow_signal())];
-    s.channels.level = Some(SignalSpec {
-        kind: SignalKind::Engineering,
-        min: 0.0,
-        max: 5.0,
-        max_rate_per_s: None,
-        stuck: None,
-        hold_max_ms: 60_000,
-        clamp_negative: false,
-    });
+    s.channels.level = Some(engineering(0.0, 5.0, 60_000, false));
     if closure {
         s.closure = Some(ClosureSpec {
             window_ticks: 1800,
-            level_sigma: LEVEL_SIGMA,
-            flow_sigma: 0.01,
-            k: 0.5,
-            h: 5.0,
+            level_sigma: S::of(LEVEL_SIGMA),
+            flow_sigma: S::of(0.01),
+            k: S::of(0.5),
+            h: S::of(5.0),
         });
     }
     s

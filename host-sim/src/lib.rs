@@ -7,13 +7,15 @@
 //! the kernel's sensor → sinks: estimates, summary, plots, with [`digits`]
 //! for the figures it writes),
 //! [`plot`] (SVG figures), [`text`] (the caution and timestamps the reports
-//! share); [`demo`] generates an invented plant's files; [`verify`] holds
+//! share); [`link`] puts the replay's sensor behind the kernel's Modbus
+//! register map for `holdup serve` and `holdup live`; [`demo`] generates an invented plant's files; [`verify`] holds
 //! the analytic cases.
 
 pub mod config;
 pub mod demo;
 pub mod digits;
 pub mod lab;
+pub mod link;
 pub mod log;
 pub mod plant;
 pub mod plot;

@@ -328,11 +328,11 @@ impl<
         const L: usize,
     > Link<S, N, R, O, I, D, L>
 {
-    /// The link around `sensor`. The analog inputs read NaN (no reading)
-    /// until the PLC writes them.
+    /// The link around `sensor`, its map sized by the sensor's type (every
+    /// bias state of an observer counted). The analog inputs read NaN (no
+    /// reading) until the PLC writes them.
     ///
-    /// Errors: [`Error::LinkMapTooLarge`] for a plant whose map does not
-    /// fit; [`Error::ConfigNonPositive`] for a unit id outside 1–247.
+    /// Errors: see [`Link::with_dims`].
     pub fn new(sensor: Sensor<S, N, R, O, I, D, L>, spec: LinkSpec) -> Result<Self, Error> {
         let biases = if sensor.observer().is_some() {
             D.saturating_sub(1 + N)
@@ -340,12 +340,41 @@ impl<
             0
         };
         let small = |x: usize| u8::try_from(x).map_err(|_| Error::LinkMapTooLarge);
-        let map = RegisterMap::new(Dims {
+        let dims = Dims {
             species: small(N)?,
             inlets: small(I)?,
             outlets: small(O)?,
             biases: small(biases)?,
-        })?;
+        };
+        Self::with_dims(sensor, spec, dims)
+    }
+
+    /// The link around a sensor whose type is sized for more streams or
+    /// bias states than the plant has (a host build that serves any plant
+    /// up to its capacities): the map has registers for the plant's
+    /// `dims` only, and the inlets and outlets past them read zero flow.
+    ///
+    /// Errors: [`Error::LinkMapTooLarge`] for a plant whose map does not
+    /// fit, or `dims` beyond the sensor's sizes (species other than `N`);
+    /// [`Error::ConfigNonPositive`] for a unit id outside 1–247.
+    pub fn with_dims(
+        sensor: Sensor<S, N, R, O, I, D, L>,
+        spec: LinkSpec,
+        dims: Dims,
+    ) -> Result<Self, Error> {
+        let bias_slots = if sensor.observer().is_some() {
+            D.saturating_sub(1 + N)
+        } else {
+            0
+        };
+        if usize::from(dims.species) != N
+            || usize::from(dims.inlets) > I
+            || usize::from(dims.outlets) > O
+            || usize::from(dims.biases) > bias_slots.min(crate::observer::MAX_BIASES)
+        {
+            return Err(Error::LinkMapTooLarge);
+        }
+        let map = RegisterMap::new(dims)?;
         if !(1..=247).contains(&spec.unit_id) {
             return Err(Error::ConfigNonPositive);
         }
@@ -612,19 +641,20 @@ impl<
             temperature: pick(m.temperature_address(), ch.temperature.is_some()),
             level: pick(m.level_address(), ch.level.is_some()),
         };
-        for (k, q) in (0u8..).zip(r.inlet_flows.iter_mut()) {
+        let d = m.dims();
+        for (k, q) in (0u8..d.inlets).zip(r.inlet_flows.iter_mut()) {
             *q = pick(
                 m.inlet_flow_address(k),
                 ch.inlet_flows[usize::from(k)].is_some(),
             );
         }
-        for (k, row) in (0u8..).zip(r.feed.iter_mut()) {
+        for (k, row) in (0u8..d.inlets).zip(r.feed.iter_mut()) {
             for (i, c) in (0u8..).zip(row.iter_mut()) {
                 let conditioned = ch.feed[usize::from(k)][usize::from(i)].is_some();
                 *c = pick(m.feed_address(k, i), conditioned);
             }
         }
-        for (k, q) in (0u8..).zip(r.outlet_flows.iter_mut()) {
+        for (k, q) in (0u8..d.outlets).zip(r.outlet_flows.iter_mut()) {
             *q = pick(
                 m.outlet_flow_address(k),
                 ch.outlet_flows[usize::from(k)].is_some(),

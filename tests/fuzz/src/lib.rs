@@ -114,3 +114,43 @@ pub fn run_log(data: &[u8], format: LogFormat) {
     }
     let _ = log.stats();
 }
+
+/// The reference sensor behind the register map (unit 1, Modbus link in
+/// sequence-clocked mode, checkpoints allowed).
+pub fn ref_link() -> holdup_kernel::modbus::Link<f32, 3, 2, 1, 2, 5, 2> {
+    use holdup_kernel::modbus::{Clock, Link, LinkSpec, WordOrder};
+    let sensor =
+        holdup_kernel::Sensor::observed(ref_observer(), holdup_kernel::SensorSpec::plain())
+            .expect("the reference sensor");
+    let spec = LinkSpec {
+        unit_id: 1,
+        word_order: WordOrder::HighFirst,
+        clock: Clock::Sequence,
+        stale_after_ms: 10_000,
+        checkpoints: true,
+    };
+    Link::new(sensor, spec).expect("the reference link")
+}
+
+/// CRC-16/MODBUS from the `crc` crate's catalogue.
+pub const MODBUS_CRC: crc::Crc<u16> = crc::Crc::<u16>::new(&crc::CRC_16_MODBUS);
+
+/// Split fuzz bytes into frames at each `0xFE 0xED` pair (at most 16).
+pub fn frames(data: &[u8]) -> impl Iterator<Item = &[u8]> {
+    let mut rest = data;
+    let mut n = 0;
+    std::iter::from_fn(move || {
+        if rest.is_empty() || n == 16 {
+            return None;
+        }
+        n += 1;
+        match rest.windows(2).position(|w| w == [0xFE, 0xED]) {
+            Some(i) => {
+                let (f, r) = rest.split_at(i);
+                rest = &r[2..];
+                Some(f)
+            }
+            None => Some(std::mem::take(&mut rest)),
+        }
+    })
+}

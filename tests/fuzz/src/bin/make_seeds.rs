@@ -52,6 +52,28 @@ fn main() {
         seed.extend_from_slice(&mem);
         put("checkpoint_decode", &format!("observer_{flag}"), &seed);
     }
+    // modbus_frame: a session of valid requests, RTU with CRCs appended and
+    // a tick after each (flag 6), and the same PDUs over TCP (flag 5).
+    let pdus: [&[u8]; 5] = [
+        &[1, 0x10, 0, 0, 0, 1, 2, 0, 1],
+        &[1, 0x04, 0, 0, 0, 40],
+        &[1, 0x03, 0, 0, 0, 10],
+        &[1, 0x05, 0, 2, 0xFF, 0],
+        &[1, 0x01, 0, 0, 0, 4],
+    ];
+    let mut rtu = vec![6u8];
+    let mut tcp = vec![5u8];
+    for (k, p) in pdus.iter().enumerate() {
+        if k > 0 {
+            rtu.extend_from_slice(&[0xFE, 0xED]);
+            tcp.extend_from_slice(&[0xFE, 0xED]);
+        }
+        rtu.extend_from_slice(p);
+        tcp.extend_from_slice(&[0, k as u8, 0, 0, 0, p.len() as u8]);
+        tcp.extend_from_slice(p);
+    }
+    put("modbus_frame", "rtu_session", &rtu);
+    put("modbus_frame", "tcp_session", &tcp);
 }
 
 /// The reference vessel's specification (same values as kernel::reference::model).

@@ -456,3 +456,47 @@ proptest! {
         prop_assert_eq!(l.counters().requests, 2);
     }
 }
+
+#[test]
+fn a_map_for_fewer_streams_than_the_sensor_holds() {
+    let spec = link_spec(Clock::Sequence, WordOrder::HighFirst);
+    let dims = |inlets, outlets, biases, species| Dims {
+        species,
+        inlets,
+        outlets,
+        biases,
+    };
+    // No inlet in the map: the sensor's inlet reads zero flow.
+    let mut l = Link::with_dims(tank(), spec, dims(0, 1, 1, 1)).unwrap();
+    assert_eq!(l.map().holding_len(), 10 + 2 * 3);
+    let w = WordOrder::HighFirst;
+    let level = f32_words(w, 10.0 / core::f32::consts::PI);
+    l.write_holding(l.map().level_address(), &level).unwrap();
+    let out = f32_words(w, 1e-3);
+    l.write_holding(l.map().outlet_flow_address(0), &out)
+        .unwrap();
+    l.write_holding(0, &[1]).unwrap();
+    l.tick(0);
+    let v = l.sensor().estimate().volume;
+    assert!((v - (10.0 - 1e-3)).abs() < 1e-4, "{v}");
+    // Beyond the sensor's sizes, or another species count: refused.
+    for d in [
+        dims(2, 1, 1, 1),
+        dims(1, 2, 1, 1),
+        dims(1, 1, 2, 1),
+        dims(1, 1, 1, 2),
+    ] {
+        assert_eq!(
+            Link::with_dims(tank(), spec, d).err(),
+            Some(Error::LinkMapTooLarge),
+            "{d:?}"
+        );
+    }
+    let bad_unit = LinkSpec { unit_id: 0, ..spec };
+    assert_eq!(
+        Link::new(tank(), bad_unit).err(),
+        Some(Error::ConfigNonPositive)
+    );
+    // Writes outside the map are refused whole.
+    assert_eq!(l.write_holding(15, &[1, 2]), Err(Error::LinkMapTooLarge));
+}

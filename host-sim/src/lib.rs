@@ -16,6 +16,7 @@ pub mod demo;
 pub mod digits;
 pub mod lab;
 pub mod link;
+pub mod live;
 pub mod log;
 pub mod plant;
 pub mod plot;

@@ -9,13 +9,16 @@ the live loop:
   summary.json (the replay pipeline, holdup's reference);
 - estimates.csv written, one row per recorded row (the replay pipeline);
 - live == replay bit for bit, as printed by holdup (its own comparison);
+- with plc.py --faults: a NaN, exception responses and timeouts each
+  reported naming the tags (and the code), the readings missing in
+  inputs.csv, and live == replay still;
 - the write-back: the output block read from the PLC with a pymodbus
   client, its holdup decoded by the documented layout (input registers
   0-12 header, one quality per species, then holdup as f32 high word
   first) equal to the replay's final holdup as f32.
 
 Usage: python3 tests/modbus/live.py [--holdup target/release/holdup]
-Takes about 30 s.
+Takes about 40 s.
 """
 
 import argparse
@@ -41,11 +44,13 @@ WRITE_BACK = 100  # [plc] write_back
 DURATION_S = 22
 STOP_AT_S = 7
 AWAY_S = 5
+FAULTS_DURATION_S = 13
 
 
-def start_plc():
+def start_plc(faults=False):
     p = subprocess.Popen(
-        [sys.executable, os.path.join(HERE, "plc.py"), "--port", str(PORT)],
+        [sys.executable, os.path.join(HERE, "plc.py"), "--port", str(PORT)]
+        + (["--faults"] if faults else []),
         stdout=subprocess.DEVNULL,
         stderr=subprocess.PIPE,
     )
@@ -89,20 +94,22 @@ def read_write_back(n):
     return None if r.isError() else r.registers
 
 
-def main():
-    ap = argparse.ArgumentParser()
-    ap.add_argument("--holdup", default=os.path.join(ROOT, "target", "release", "holdup"))
-    args = ap.parse_args()
-    out = tempfile.mkdtemp(prefix="holdup-live-")
-    started = time.time()
-    plc = start_plc()
-    live = subprocess.Popen(
-        [args.holdup, "live", "--config", CONFIG, "--out", out,
-         "--duration", "%d s" % DURATION_S, "--quiet"],
+def start_live(holdup, out, duration_s):
+    return subprocess.Popen(
+        [holdup, "live", "--config", CONFIG, "--out", out,
+         "--duration", "%d s" % duration_s, "--quiet"],
         stdout=subprocess.PIPE,
         stderr=subprocess.PIPE,
         text=True,
     )
+
+
+def outage(holdup):
+    """The PLC stopped mid-run and restarted."""
+    print("== the PLC away for %d s and back" % AWAY_S)
+    out = tempfile.mkdtemp(prefix="holdup-live-")
+    plc = start_plc()
+    live = start_live(holdup, out, DURATION_S)
     time.sleep(STOP_AT_S)
     stop_plc(plc)
     time.sleep(AWAY_S)
@@ -159,6 +166,55 @@ def main():
         stop_plc(plc)
         if live.poll() is None:
             live.kill()
+
+
+def column(rows, name):
+    i = rows[0].index(name)
+    return [r[i] for r in rows[1:]]
+
+
+def faults(holdup):
+    """A value that is not finite, exception responses, timeouts (plc.py
+    --faults: their windows are in its doc)."""
+    print("== faults: a NaN, exception 02, slow responses")
+    out = tempfile.mkdtemp(prefix="holdup-live-faults-")
+    plc = start_plc(faults=True)
+    live = start_live(holdup, out, FAULTS_DURATION_S)
+    try:
+        stdout, stderr = live.communicate(timeout=FAULTS_DURATION_S + 20)
+        print(stdout)
+        print(stderr, file=sys.stderr)
+        check(live.returncode == 0, "holdup live exits 0 (got %s)" % live.returncode)
+        check("tag FI-210: the PLC holds a value that is not finite" in stderr,
+              "the NaN is reported, naming the tag")
+        check(re.search(r"tag TI-710, LI-710, XI-110: unit 1, input registers 0\.\.3: "
+                        r"exception response, code 02", stderr) is not None,
+              "the exception response is reported, naming the tags and the code")
+        check("no response within the timeout" in stderr, "the timeout is reported")
+        m = re.search(r"(\d+) timeouts, (\d+) exception responses", stdout)
+        check(m is not None and int(m.group(1)) >= 1 and int(m.group(2)) >= 1,
+              "the report counts timeouts and exception responses")
+        check("live vs replay: the same bit for bit" in stdout, "live == replay bit for bit")
+        with open(os.path.join(out, "inputs.csv")) as f:
+            rows = list(csv.reader(f))
+        fi210, fi110, ti710 = (column(rows, t) for t in ("FI-210", "FI-110", "TI-710"))
+        check(any(a == "" and b != "" for a, b in zip(fi210, fi110)),
+              "inputs.csv: FI-210 missing while the other flows are read")
+        check(any(a == "" and b != "" for a, b in zip(ti710, fi110)),
+              "inputs.csv: the input registers' tags missing while the flows are read")
+    finally:
+        stop_plc(plc)
+        if live.poll() is None:
+            live.kill()
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--holdup", default=os.path.join(ROOT, "target", "release", "holdup"))
+    args = ap.parse_args()
+    started = time.time()
+    outage(args.holdup)
+    faults(args.holdup)
     print("%.1f s, %d failed" % (time.time() - started, len(failures)))
     sys.exit(1 if failures else 0)
 

@@ -15,7 +15,12 @@ Input registers:
 The signals are functions of wall-clock time, so a PLC restarted after a
 stop goes on where the stopped one would have been.
 
-Usage: python3 plc.py [--port 15020]
+With --faults, in seconds after the start: FI-210 holds a NaN from 3 to 6
+(a value that is not finite), the input registers answer exception 02
+(illegal data address) from 6 to 9, and holding-register reads are
+answered only after 0.6 s (past the fixture's 300 ms timeout) from 9 to 11.
+
+Usage: python3 plc.py [--port 15020] [--faults]
 """
 
 import argparse
@@ -33,6 +38,37 @@ from pymodbus.server import StartAsyncTcpServer
 
 HOLDING_SIZE = 200
 INPUT_SIZE = 4
+
+# Fault windows of --faults, seconds after the start.
+NAN_WINDOW = (3.0, 6.0)
+EXCEPTION_WINDOW = (6.0, 9.0)
+SLOW_WINDOW = (9.0, 11.0)
+SLOW_S = 0.6
+
+
+def within(window, t):
+    return window[0] <= t < window[1]
+
+
+class FaultyPlc(ModbusSlaveContext):
+    """A datastore that misbehaves in the fault windows."""
+
+    def __init__(self, start, **kwargs):
+        super().__init__(**kwargs)
+        self.start = start
+
+    def since_start(self):
+        return time.time() - self.start
+
+    def validate(self, fc_as_hex, address, count=1):
+        if fc_as_hex == 4 and within(EXCEPTION_WINDOW, self.since_start()):
+            return False  # pymodbus answers exception 02
+        return super().validate(fc_as_hex, address, count)
+
+    async def async_getValues(self, fc_as_hex, address, count=1):
+        if fc_as_hex == 3 and within(SLOW_WINDOW, self.since_start()):
+            await asyncio.sleep(SLOW_S)
+        return await super().async_getValues(fc_as_hex, address, count)
 
 
 def f32_words(x, high_first=True):
@@ -53,9 +89,11 @@ def signals(t):
     }
 
 
-def registers(t):
+def registers(t, nan_outlet=False):
     """(holding 0-5, input 0-3) at time t."""
     s = signals(t)
+    if nan_outlet:
+        s["FI-210"] = float("nan")
     holding = (
         f32_words(s["FI-110"])
         + f32_words(s["FI-120"], high_first=False)
@@ -68,18 +106,21 @@ def registers(t):
     return holding, inputs
 
 
-async def update(slave):
+async def update(slave, faults, start):
     while True:
-        holding, inputs = registers(time.time())
+        now = time.time()
+        holding, inputs = registers(now, faults and within(NAN_WINDOW, now - start))
         # pymodbus 3.8 contexts add 1 to the protocol address.
         slave.setValues(3, 0, holding)
         slave.setValues(4, 0, inputs)
         await asyncio.sleep(1.0 - (time.time() % 1.0))
 
 
-async def main(port):
+async def main(port, faults):
+    start = time.time()
     # Blocks start at 1: pymodbus 3.8 maps protocol address 0 to block address 1.
-    slave = ModbusSlaveContext(
+    slave = FaultyPlc(
+        start if faults else float("inf"),
         hr=ModbusSequentialDataBlock(1, [0] * HOLDING_SIZE),
         ir=ModbusSequentialDataBlock(1, [0] * INPUT_SIZE),
     )
@@ -87,7 +128,7 @@ async def main(port):
     holding, inputs = registers(time.time())
     slave.setValues(3, 0, holding)
     slave.setValues(4, 0, inputs)
-    task = asyncio.create_task(update(slave))
+    task = asyncio.create_task(update(slave, faults, start))
     try:
         await StartAsyncTcpServer(context=context, address=("127.0.0.1", port))
     finally:
@@ -97,4 +138,6 @@ async def main(port):
 if __name__ == "__main__":
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--port", type=int, default=15020)
-    asyncio.run(main(parser.parse_args().port))
+    parser.add_argument("--faults", action="store_true")
+    args = parser.parse_args()
+    asyncio.run(main(args.port, args.faults))

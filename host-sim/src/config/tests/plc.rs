@@ -229,3 +229,31 @@ fn every_tag_needs_a_point_and_a_point_needs_plc() {
         &["needs a [plc] section"],
     );
 }
+
+/// The ```toml block under "## Live beside a PLC" in `docs/config.md`.
+fn doc_block() -> String {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("../docs/config.md");
+    let doc = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let mut lines = doc
+        .lines()
+        .skip_while(|l| !l.starts_with("## Live beside a PLC"))
+        .skip_while(|l| l.trim() != "```toml")
+        .skip(1);
+    let block: Vec<&str> = lines.by_ref().take_while(|l| l.trim() != "```").collect();
+    assert!(
+        !block.is_empty(),
+        "no ```toml block under \"## Live beside a PLC\""
+    );
+    block.join("\n") + "\n"
+}
+
+#[test]
+fn the_docs_example_is_the_fixtures_plc() {
+    // The fixture up to its [plc], then the doc's block: the same PLC and
+    // the same points as the fixture (the doc's hold keys left out).
+    let f = fixture();
+    let head = &f[..f.find("[plc]").unwrap()];
+    let from_doc = ok(&format!("{head}{}", doc_block()));
+    let fixture = ok(&f);
+    assert_eq!(from_doc.plc, fixture.plc);
+}

@@ -244,13 +244,13 @@ impl Client {
             None => Err(Failure::Offline),
         };
         match result {
+            Ok(r) if r.get(0..2) != request.get(0..2) => {
+                self.broken("the response answers another transaction".to_string())
+            }
             Ok(r) => match (r.get(7), r.get(8)) {
                 (Some(f), Some(code)) if f & 0x80 != 0 => {
                     self.counters.exceptions += 1;
                     Err(Failure::Exception(*code))
-                }
-                _ if r.get(0..2) != request.get(0..2) => {
-                    self.broken("the response answers another transaction".to_string())
                 }
                 _ => Ok(r),
             },

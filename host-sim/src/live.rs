@@ -92,7 +92,8 @@ impl fmt::Display for LiveError {
 
 impl std::error::Error for LiveError {}
 
-/// The outcome: the text to print and whether live equals replay.
+/// The outcome: the text to print (also written to `live.txt`) and whether
+/// live equals replay.
 pub struct Outcome {
     /// The polling report, the replay's summary and the comparison.
     pub text: String,
@@ -180,6 +181,13 @@ struct Live<'a> {
 /// Run live until `duration_ms` has elapsed or `stop` is set.
 pub fn run(req: &Request<'_>) -> Result<Outcome, LiveError> {
     let plc = check_plant(req.plant)?;
+    if req.write_back && plc.write_back.is_none() {
+        return Err(LiveError::Plant(format!(
+            "{}: [plc] write_back: missing (required by --write-back): the first holding \
+             register to write the output block to",
+            req.plant.path.display()
+        )));
+    }
     let out = req.out_dir;
     std::fs::create_dir_all(out).map_err(|error| LiveError::Io {
         path: out.to_path_buf(),
@@ -220,13 +228,6 @@ pub fn run(req: &Request<'_>) -> Result<Outcome, LiveError> {
     let link = link::build_for(&plant, spec).map_err(|e| LiveError::Kernel(e.message()))?;
     let targets = targets(&plant, &tags, link.as_ref());
     let write_back = plc.write_back;
-    if req.write_back && plc.write_back.is_none() {
-        return Err(LiveError::Plant(format!(
-            "{}: [plc] write_back: missing (required by --write-back): the first holding \
-             register to write the output block to",
-            plant.path.display()
-        )));
-    }
     let snapshots = vec![link.input_registers().to_vec()];
     let mut live = Live {
         req,
@@ -412,6 +413,8 @@ impl Live<'_> {
             text.push_str(&format!(
                 "\nlive vs replay: DIFFERENT: the replay ran {n} ticks, the live run {ticks}\n"
             ));
+            let path = self.req.out_dir.join("live.txt");
+            std::fs::write(&path, &text).map_err(|error| LiveError::Io { path, error })?;
             return Ok(Outcome { text, agree: false });
         };
         let compared = check::compare(&self.plant, self.link.map(), regs, &outcome);
@@ -432,6 +435,8 @@ impl Live<'_> {
                 diffs.join("\n")
             ));
         }
+        let path = self.req.out_dir.join("live.txt");
+        std::fs::write(&path, &text).map_err(|error| LiveError::Io { path, error })?;
         Ok(Outcome { text, agree })
     }
 }

@@ -90,3 +90,22 @@ fn no_plc_listening_ends_with_no_reading_and_an_empty_recording() {
     let csv = std::fs::read_to_string(out_dir.join("inputs.csv")).unwrap();
     assert_eq!(csv, "time,FI-110,XI-110,FI-120,FI-210,TI-710,LI-710\n");
 }
+
+#[test]
+fn write_back_without_an_address_is_refused_before_polling() {
+    let dir = scratch("live-write-back");
+    let config = dir.join("plant.toml");
+    let text = fixture_text().replace("write_back = 100\n", "");
+    std::fs::write(&config, text).unwrap();
+    let out = live(
+        &config,
+        &dir.join("out"),
+        &["--duration", "5 s", "--write-back"],
+    );
+    refused(
+        &out,
+        &["[plc] write_back: missing (required by --write-back)"],
+    );
+    // Refused at once, not after polling a PLC that is not there.
+    assert!(!dir.join("out/inputs.csv").exists());
+}

@@ -126,6 +126,8 @@ def outage(holdup):
         check(re.search(r"PLC away \(no reading at all\): \S+ to \S+", stdout) is not None,
               "the report names the window the PLC was away")
         check("live vs replay: the same bit for bit" in stdout, "live == replay bit for bit")
+        with open(os.path.join(out, "live.txt")) as f:
+            check(f.read() == stdout, "live.txt holds the printed report")
 
         with open(os.path.join(out, "inputs.csv")) as f:
             rows = list(csv.reader(f))

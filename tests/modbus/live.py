@@ -12,13 +12,15 @@ the live loop:
 - with plc.py --faults: a NaN, exception responses and timeouts each
   reported naming the tags (and the code), the readings missing in
   inputs.csv, and live == replay still;
+- a run without --duration stopped by SIGINT: exit 0, report, live ==
+  replay;
 - the write-back: the output block read from the PLC with a pymodbus
   client, its holdup decoded by the documented layout (input registers
   0-12 header, one quality per species, then holdup as f32 high word
   first) equal to the replay's final holdup as f32.
 
 Usage: python3 tests/modbus/live.py [--holdup target/release/holdup]
-Takes about 40 s.
+Takes about 45 s.
 """
 
 import argparse
@@ -26,6 +28,7 @@ import csv
 import json
 import os
 import re
+import signal
 import socket
 import struct
 import subprocess
@@ -95,9 +98,9 @@ def read_write_back(n):
 
 
 def start_live(holdup, out, duration_s):
+    duration = ["--duration", "%d s" % duration_s] if duration_s else []
     return subprocess.Popen(
-        [holdup, "live", "--config", CONFIG, "--out", out,
-         "--duration", "%d s" % duration_s, "--quiet"],
+        [holdup, "live", "--config", CONFIG, "--out", out, "--quiet"] + duration,
         stdout=subprocess.PIPE,
         stderr=subprocess.PIPE,
         text=True,
@@ -210,6 +213,25 @@ def faults(holdup):
             live.kill()
 
 
+def interrupted(holdup):
+    """No --duration: Ctrl-C (SIGINT) ends the run with the full report."""
+    print("== stopped by SIGINT")
+    out = tempfile.mkdtemp(prefix="holdup-live-int-")
+    plc = start_plc()
+    live = start_live(holdup, out, None)
+    try:
+        time.sleep(4)
+        live.send_signal(signal.SIGINT)
+        stdout, _ = live.communicate(timeout=10)
+        check(live.returncode == 0, "holdup live exits 0 after SIGINT (got %s)" % live.returncode)
+        check("live vs replay: the same bit for bit" in stdout,
+              "after SIGINT: the report, the replay and live == replay")
+    finally:
+        stop_plc(plc)
+        if live.poll() is None:
+            live.kill()
+
+
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--holdup", default=os.path.join(ROOT, "target", "release", "holdup"))
@@ -217,6 +239,7 @@ def main():
     started = time.time()
     outage(args.holdup)
     faults(args.holdup)
+    interrupted(args.holdup)
     print("%.1f s, %d failed" % (time.time() - started, len(failures)))
     sys.exit(1 if failures else 0)
 

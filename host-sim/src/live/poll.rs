@@ -82,6 +82,9 @@ pub fn plan(points: &[(String, PlcPoint)]) -> Vec<Group> {
 
 #[cfg(test)]
 mod tests {
+    //! Expected requests worked out by hand from the addresses; the limit
+    //! of 125 registers per read is the Modbus application protocol's
+    //! (functions 03 and 04: quantity 1 to 125).
     use super::*;
     use crate::plant::PlcType;
     use holdup_kernel::modbus::WordOrder;

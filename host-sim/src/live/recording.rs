@@ -77,6 +77,9 @@ impl Recording {
 
 #[cfg(test)]
 mod tests {
+    //! Checked by reading the text back with Rust's own `f64` parser (the
+    //! one the log reader uses) and against the ISO 8601 text of a time
+    //! worked out by hand (1 764 700 000 s = 20 424 days + 66 400 s).
     use super::*;
 
     #[test]

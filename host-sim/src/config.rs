@@ -19,12 +19,14 @@
 //! then the sections in the order they are read: `settings` (`[plant]`),
 //! `vessel`, `species`, `streams` (`[[inlet]]`, `[[outlet]]`), `measured`
 //! (`[temperature]`, `[level]`, `[[analyser]]`), `reaction`, `initial`,
-//! `log` (`[log]`, `[tags."…"]`) and `estimator`.
+//! `log` (`[log]`, `[tags."…"]`), `estimator` and `plc` (`[plc]`, the
+//! `plc` table of `[tags."…"]`, for a live run).
 
 mod estimator;
 mod initial;
 mod log;
 mod measured;
+mod plc;
 mod quantity;
 mod reaction;
 mod settings;
@@ -126,6 +128,7 @@ const TOP_KEYS: &[&str] = &[
     "log",
     "tags",
     "estimator",
+    "plc",
 ];
 
 /// The whole file, section by section in the order each needs the ones
@@ -154,6 +157,8 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
     let initial = initial::read(&i, &geometry, &species)?;
     let log = log::read_log(root)?;
     let tag_options = log::read_tags(root, &tags.distinct(), &log)?;
+    let used: Vec<String> = tag_options.iter().map(|t| t.tag.clone()).collect();
+    let plc = plc::read(root, &used, tick_ms)?;
 
     let estimator = match section(root, "estimator")? {
         None => None,
@@ -190,5 +195,6 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
         tags: tag_options,
         log,
         estimator,
+        plc,
     })
 }

@@ -8,14 +8,17 @@
 //! for the figures it writes),
 //! [`plot`] (SVG figures), [`text`] (the caution and timestamps the reports
 //! share); [`link`] puts the replay's sensor behind the kernel's Modbus
-//! register map for `holdup serve` and `holdup live`; [`demo`] generates an invented plant's files; [`verify`] holds
-//! the analytic cases.
+//! register map for `holdup serve` and `holdup live`; [`live`] polls a PLC
+//! over Modbus TCP, runs that sensor in real time, records the inputs and
+//! checks the run against their replay; [`demo`] generates an invented
+//! plant's files; [`verify`] holds the analytic cases.
 
 pub mod config;
 pub mod demo;
 pub mod digits;
 pub mod lab;
 pub mod link;
+pub mod live;
 pub mod log;
 pub mod plant;
 pub mod plot;

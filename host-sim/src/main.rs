@@ -3,7 +3,7 @@ use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
-use holdup_sim::{config, demo, replay, units, verify};
+use holdup_sim::{config, demo, live, replay, units, verify};
 
 /// holdup: composition and holdup of tanks and stirred reactors from
 /// measured flows, replayed from historian logs through the same kernel that
@@ -59,6 +59,32 @@ enum Command {
         #[arg(long, short)]
         quiet: bool,
     },
+    /// Poll a PLC over Modbus TCP at the plant's tick, run the sensor live,
+    /// record the inputs, then replay the recording and check that the live
+    /// estimate equals the replay's bit for bit (exit 1 if not).
+    ///
+    /// Example: holdup live --config plant.toml --out live-run --duration 10min
+    Live {
+        /// Plant configuration with [plc] and each tag's plc table (see
+        /// docs/config.md).
+        #[arg(long)]
+        config: PathBuf,
+        /// Output folder: inputs.csv, then the replay's report (created if
+        /// missing).
+        #[arg(long)]
+        out: PathBuf,
+        /// Stop after this long (for example "30 s", "8 h"); default: run
+        /// until interrupted (Ctrl-C).
+        #[arg(long)]
+        duration: Option<String>,
+        /// Write the output block back to the PLC after each tick (needs
+        /// [plc] write_back, which alone also enables it).
+        #[arg(long)]
+        write_back: bool,
+        /// No status line.
+        #[arg(long, short)]
+        quiet: bool,
+    },
     /// Run the kernel through the analytic step-response cases and print a
     /// table; exits with status 1 if any case fails.
     ///
@@ -93,6 +119,52 @@ fn run_replay(
         Ok(outcome) => {
             print!("{}", outcome.text);
             ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("error: {e}");
+            ExitCode::from(2)
+        }
+    }
+}
+
+fn run_live(
+    config_path: &Path,
+    out: &Path,
+    duration: Option<&str>,
+    write_back: bool,
+    quiet: bool,
+) -> ExitCode {
+    let duration_ms = match duration.map(units::parse_duration_ms) {
+        None => None,
+        Some(Ok(ms)) => Some(ms),
+        Some(Err(e)) => {
+            eprintln!("error: --duration: {e}");
+            return ExitCode::from(2);
+        }
+    };
+    let plant = match config::load(config_path) {
+        Ok(p) => p,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return ExitCode::from(2);
+        }
+    };
+    let req = live::Request {
+        plant: &plant,
+        out_dir: out,
+        duration_ms,
+        write_back,
+        status_line: !quiet && std::io::stderr().is_terminal(),
+        stop: live::interrupt::flag(),
+    };
+    match live::run(&req) {
+        Ok(outcome) => {
+            print!("{}", outcome.text);
+            if outcome.agree {
+                ExitCode::SUCCESS
+            } else {
+                ExitCode::FAILURE
+            }
         }
         Err(e) => {
             eprintln!("error: {e}");
@@ -144,6 +216,13 @@ fn main() -> ExitCode {
             };
             run_replay(&config, &log, lab.as_deref(), &out, every_ms, quiet)
         }
+        Command::Live {
+            config,
+            out,
+            duration,
+            write_back,
+            quiet,
+        } => run_live(&config, &out, duration.as_deref(), write_back, quiet),
         Command::Verify => {
             let results = verify::run_all();
             print!("{}", verify::table(&results));

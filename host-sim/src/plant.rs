@@ -171,6 +171,83 @@ pub struct TagOptions {
     pub conditioning: Conditioning,
 }
 
+/// Which register table of a PLC holds a tag.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum PlcTable {
+    /// Holding registers (function 03).
+    Holding,
+    /// Input registers (function 04).
+    Input,
+}
+
+/// How a tag's value is stored in PLC registers.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum PlcType {
+    /// One register, unsigned.
+    U16,
+    /// One register, two's complement.
+    I16,
+    /// Two registers, unsigned.
+    U32,
+    /// Two registers, two's complement.
+    I32,
+    /// Two registers, IEEE 754 single precision.
+    F32,
+}
+
+impl PlcType {
+    /// Registers the value takes.
+    pub const fn width(self) -> u16 {
+        match self {
+            PlcType::U16 | PlcType::I16 => 1,
+            PlcType::U32 | PlcType::I32 | PlcType::F32 => 2,
+        }
+    }
+}
+
+/// Where a PLC holds one tag, and how to read it: the value in the tag's
+/// configured unit is `raw · scale + offset`.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct PlcPoint {
+    /// Unit id (slave address) of the request.
+    pub unit_id: u8,
+    /// Register table.
+    pub table: PlcTable,
+    /// First register, 0-based protocol address (as on the wire).
+    pub address: u16,
+    /// Stored type.
+    pub kind: PlcType,
+    /// Word order of a two-register type.
+    pub word_order: holdup_kernel::modbus::WordOrder,
+    /// Multiplier from the raw value to the tag's unit.
+    pub scale: f64,
+    /// Offset added after `scale`, in the tag's unit.
+    pub offset: f64,
+}
+
+/// The PLC a live run polls (`[plc]`).
+#[derive(Clone, Debug, PartialEq)]
+pub struct PlcSettings {
+    /// `host:port` of its Modbus TCP server.
+    pub address: String,
+    /// Default unit id of the tags.
+    pub unit_id: u8,
+    /// Default word order of the tags' two-register values.
+    pub word_order: holdup_kernel::modbus::WordOrder,
+    /// How long a request (or a connection attempt) may take, ms.
+    pub timeout_ms: u64,
+    /// First wait before reconnecting after the connection is lost, ms.
+    pub reconnect_ms: u64,
+    /// Longest wait between reconnection attempts, ms (the wait doubles).
+    pub reconnect_max_ms: u64,
+    /// Holding address from which the output block is written back after
+    /// each tick, if any (0-based protocol address).
+    pub write_back: Option<u16>,
+    /// Where the PLC holds each tag that has a `[tags."…"] plc` table, in
+    /// the order of the plant's tags.
+    pub points: Vec<(String, PlcPoint)>,
+}
+
 /// Default time the last good value of a tag stands in for rejected or
 /// missing ones, ms.
 pub const DEFAULT_HOLD_MS: u64 = 600_000;
@@ -340,6 +417,8 @@ pub struct Plant {
     pub log: LogOptions,
     /// Estimator settings; `None`: open loop only.
     pub estimator: Option<Estimator>,
+    /// The PLC of a live run (`[plc]`), if configured.
+    pub plc: Option<PlcSettings>,
 }
 
 /// Capacities the host replay is compiled for.

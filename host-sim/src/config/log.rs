@@ -16,6 +16,7 @@ const TAG_KEYS: &[&str] = &[
     "stuck",
     "stuck_tolerance",
     "hold",
+    "plc",
 ];
 
 /// Default `[log] max_age`: 10 min.

@@ -8,6 +8,7 @@ mod estimator;
 mod initial;
 mod log;
 mod measured;
+mod plc;
 mod reaction;
 mod streams;
 mod vessel;

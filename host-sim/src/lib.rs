@@ -8,7 +8,8 @@
 //! for the figures it writes),
 //! [`plot`] (SVG figures), [`text`] (the caution and timestamps the reports
 //! share); [`link`] puts the replay's sensor behind the kernel's Modbus
-//! register map for `holdup serve` and `holdup live`; [`demo`] generates an invented plant's files; [`verify`] holds
+//! register map for `holdup serve` and `holdup live`; [`serve`] is that
+//! Modbus TCP server and [`registers`] writes the map's documentation; [`demo`] generates an invented plant's files; [`verify`] holds
 //! the analytic cases.
 
 pub mod config;
@@ -19,7 +20,9 @@ pub mod link;
 pub mod log;
 pub mod plant;
 pub mod plot;
+pub mod registers;
 pub mod replay;
+pub mod serve;
 pub mod text;
 pub mod to_kernel;
 pub mod units;

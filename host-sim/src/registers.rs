@@ -46,6 +46,33 @@ fn kind_word(k: Kind) -> &'static str {
     }
 }
 
+/// A stable key of an entry for programs reading the CSV: the item's
+/// name in snake case with its stream, species and bias indices
+/// (`feed[0][1]` is species 1 in inlet 0).
+pub fn key(item: Item) -> String {
+    match item {
+        Item::InletFlow(k) => format!("inlet_flow[{k}]"),
+        Item::Feed(k, i) => format!("feed[{k}][{i}]"),
+        Item::OutletFlow(k) => format!("outlet_flow[{k}]"),
+        Item::ConcentrationQuality(i) => format!("concentration_quality[{i}]"),
+        Item::Concentration(i) => format!("concentration[{i}]"),
+        Item::ConcentrationSigma(i) => format!("concentration_sigma[{i}]"),
+        Item::Bias(b) => format!("bias[{b}]"),
+        Item::BiasSigma(b) => format!("bias_sigma[{b}]"),
+        other => {
+            // The unit variants: their Debug name, in snake case.
+            let mut out = String::new();
+            for (k, c) in format!("{other:?}").chars().enumerate() {
+                if c.is_ascii_uppercase() && k > 0 {
+                    out.push('_');
+                }
+                out.push(c.to_ascii_lowercase());
+            }
+            out
+        }
+    }
+}
+
 /// Who writes an entry.
 fn access(t: Table) -> &'static str {
     match t {
@@ -190,17 +217,18 @@ pub fn reason_bits() -> Vec<(u32, &'static str)> {
 
 /// One row per entry: the CSV.
 pub fn csv(plant: &Plant, map: &RegisterMap) -> String {
-    let mut out = String::from("table,address,number,name,type,registers,unit,access,meaning\n");
+    let mut out = String::from("table,address,number,key,name,type,registers,unit,access,meaning\n");
     let names = Names(plant);
     let q = |s: &str| format!("\"{}\"", s.replace('"', "\"\""));
     for e in map.entries() {
         let (name, unit, meaning) = describe(e.item, &names);
         let _ = writeln!(
             out,
-            "{},{},{},{},{},{},{},{},{}",
+            "{},{},{},{},{},{},{},{},{},{}",
             table_word(e.table),
             e.address,
             number(&e),
+            key(e.item),
             q(&name),
             kind_word(e.kind),
             e.kind.width(),
@@ -344,5 +372,13 @@ mod tests {
         assert_eq!(number(&e(Table::Holding, 0)), "40001");
         assert_eq!(number(&e(Table::Input, 27)), "30028");
         assert_eq!(number(&e(Table::Coil, 3)), "00004");
+    }
+
+    #[test]
+    fn keys_are_snake_case_with_indices() {
+        assert_eq!(key(Item::InputSequence), "input_sequence");
+        assert_eq!(key(Item::LevelEstimate), "level_estimate");
+        assert_eq!(key(Item::Feed(1, 2)), "feed[1][2]");
+        assert_eq!(key(Item::BiasSigma(0)), "bias_sigma[0]");
     }
 }

@@ -217,7 +217,8 @@ pub fn reason_bits() -> Vec<(u32, &'static str)> {
 
 /// One row per entry: the CSV.
 pub fn csv(plant: &Plant, map: &RegisterMap) -> String {
-    let mut out = String::from("table,address,number,key,name,type,registers,unit,access,meaning\n");
+    let mut out =
+        String::from("table,address,number,key,name,type,registers,unit,access,meaning\n");
     let names = Names(plant);
     let q = |s: &str| format!("\"{}\"", s.replace('"', "\"\""));
     for e in map.entries() {

@@ -41,10 +41,18 @@ fn the_csv_has_one_row_per_entry_of_the_map() {
     assert_eq!(rows.len(), map.entries().count());
     for (row, e) in rows.iter().zip(map.entries()) {
         assert_eq!(row[1].parse::<u16>().unwrap(), e.address);
-        assert_eq!(row[5].parse::<u16>().ok(), None, "type is a word: {:?}", &row[5]);
+        assert_eq!(
+            row[5].parse::<u16>().ok(),
+            None,
+            "type is a word: {:?}",
+            &row[5]
+        );
         assert_eq!(row[6].parse::<u16>().unwrap(), e.kind.width());
     }
     let names: Vec<&str> = rows.iter().map(|r| &r[4]).collect();
-    assert!(names.contains(&"feed NaOH in inlet 'caustic pump P-11'"), "{names:?}");
+    assert!(
+        names.contains(&"feed NaOH in inlet 'caustic pump P-11'"),
+        "{names:?}"
+    );
     assert!(names.contains(&"bias of 'caustic pump P-11'"), "{names:?}");
 }

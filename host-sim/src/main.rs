@@ -248,14 +248,33 @@ fn run_serve(a: &ServeArgs) -> ExitCode {
     let names = plant.species.iter().map(|s| s.name.clone()).collect();
     let line = StatusLine::new(map, spec.word_order, names);
     let tty = std::io::stderr().is_terminal();
-    loop {
-        std::thread::sleep(std::time::Duration::from_secs(1));
+    // On a terminal, end of input (Ctrl-D) stops the server; a server
+    // started with no terminal runs until it is killed.
+    let (done_tx, done) = std::sync::mpsc::channel::<()>();
+    if std::io::stdin().is_terminal() {
+        println!("Ctrl-D stops the server.");
+        std::thread::spawn(move || {
+            let _ = std::io::copy(&mut std::io::stdin().lock(), &mut std::io::sink());
+            let _ = done_tx.send(());
+        });
+    } else {
+        std::mem::forget(done_tx);
+    }
+    while done
+        .recv_timeout(std::time::Duration::from_secs(1))
+        .is_err()
+    {
         if tty {
             let shared = server.shared();
             let regs = shared.lock().link.input_registers().to_vec();
             eprint!("\r{}\x1b[K", line.render(&regs, &shared.stats));
         }
     }
+    let shared = std::sync::Arc::clone(server.shared());
+    server.stop();
+    let regs = shared.lock().link.input_registers().to_vec();
+    println!("\nstopped: {}", line.render(&regs, &shared.stats));
+    ExitCode::SUCCESS
 }
 
 fn run_registers(config_path: &Path, out: &Path) -> ExitCode {

@@ -8,10 +8,11 @@
 //! for the figures it writes),
 //! [`plot`] (SVG figures), [`text`] (the caution and timestamps the reports
 //! share); [`link`] puts the replay's sensor behind the kernel's Modbus
-//! register map for `holdup serve` and `holdup live`; [`live`] polls a PLC
-//! over Modbus TCP, runs that sensor in real time, records the inputs and
-//! checks the run against their replay; [`demo`] generates an invented
-//! plant's files; [`verify`] holds the analytic cases.
+//! register map; [`serve`] is that Modbus TCP server and [`registers`]
+//! writes the map's documentation; [`live`] polls a PLC over Modbus TCP,
+//! runs that sensor in real time, records the inputs and checks the run
+//! against their replay; [`demo`] generates an invented plant's files;
+//! [`verify`] holds the analytic cases.
 
 pub mod config;
 pub mod demo;
@@ -22,7 +23,9 @@ pub mod live;
 pub mod log;
 pub mod plant;
 pub mod plot;
+pub mod registers;
 pub mod replay;
+pub mod serve;
 pub mod text;
 pub mod to_kernel;
 pub mod units;

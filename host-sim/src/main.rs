@@ -3,7 +3,12 @@ use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
-use holdup_sim::{config, demo, live, replay, units, verify};
+use holdup_kernel::modbus::{Clock, LinkSpec, WordOrder};
+use holdup_sim::serve::access::AllowList;
+use holdup_sim::serve::status::StatusLine;
+use holdup_sim::serve::{ServeOptions, Server, SECURITY_NOTE};
+use holdup_sim::text::CAUTION;
+use holdup_sim::{config, demo, link, live, registers, replay, units, verify};
 
 /// holdup: composition and holdup of tanks and stirred reactors from
 /// measured flows, replayed from historian logs through the same kernel that
@@ -90,6 +95,234 @@ enum Command {
     ///
     /// Example: holdup verify
     Verify,
+    /// Serve the plant's sensor live as a Modbus TCP server: a PLC writes
+    /// the measured inputs and reads the estimates (see docs/registers.md).
+    ///
+    /// Example: holdup serve --config plant.toml --listen 0.0.0.0:1502 --allow-write-from 10.4.0.20
+    Serve(ServeArgs),
+    /// Write the plant's register map: registers.md (tables for the
+    /// reader) and registers.csv (one row per entry, for import).
+    ///
+    /// Example: holdup registers --config plant.toml --out docs
+    Registers {
+        /// Plant configuration (TOML; see docs/config.md).
+        #[arg(long)]
+        config: PathBuf,
+        /// Output folder (created if missing).
+        #[arg(long)]
+        out: PathBuf,
+    },
+}
+
+/// The options of `holdup serve`.
+#[derive(clap::Args)]
+struct ServeArgs {
+    /// Plant configuration (TOML; see docs/config.md).
+    #[arg(long)]
+    config: PathBuf,
+    /// Address and port to listen on (port 0: any free port, printed at start).
+    #[arg(long, default_value = "127.0.0.1:1502")]
+    listen: String,
+    /// A second address and port that answers reads and refuses every write.
+    #[arg(long)]
+    read_only_listen: Option<String>,
+    /// Unit id (slave address) answered, 1-247.
+    #[arg(long, default_value_t = 1)]
+    unit: u8,
+    /// How 32-bit values are split across two registers.
+    #[arg(long, value_enum, default_value_t = Order::HighFirst)]
+    word_order: Order,
+    /// What starts a tick: `real` (the plant's tick in real time) or
+    /// `sequence` (each change of the input-sequence register).
+    #[arg(long, value_enum, default_value_t = ClockArg::Real)]
+    clock: ClockArg,
+    /// Watchdog: the inputs are stale when the input sequence has not
+    /// changed for this long ("10 s", "30 ticks", or "off").
+    #[arg(long, default_value = "10 s")]
+    stale_after: String,
+    /// Addresses and networks allowed to write, comma-separated
+    /// ("10.4.0.20, 10.5.0.0/16", or "none"); default loopback only.
+    #[arg(long)]
+    allow_write_from: Option<String>,
+    /// Close a connection that sends no whole request for this long.
+    #[arg(long, default_value = "60 s")]
+    idle_timeout: String,
+    /// Connections open at once, at most.
+    #[arg(long, default_value_t = 32)]
+    max_clients: usize,
+}
+
+/// `--word-order`.
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum Order {
+    /// High 16 bits in the lower address.
+    HighFirst,
+    /// Low 16 bits in the lower address.
+    LowFirst,
+}
+
+/// `--clock`.
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum ClockArg {
+    /// The plant's tick in real time.
+    Real,
+    /// One tick per change of the input-sequence register.
+    Sequence,
+}
+
+/// The watchdog's time in ms: "off", "N ticks" or a duration.
+fn stale_after_ms(text: &str, tick_ms: u32) -> Result<u64, String> {
+    let t = text.trim();
+    if t == "off" {
+        return Ok(0);
+    }
+    if let Some(n) = t.strip_suffix("ticks").or_else(|| t.strip_suffix("tick")) {
+        let n: u64 = n
+            .trim()
+            .parse()
+            .map_err(|_| format!("`{text}`: the number of ticks is not a whole number"))?;
+        return Ok(n.saturating_mul(u64::from(tick_ms)));
+    }
+    units::parse_duration_ms(t).map_err(|e| e.to_string())
+}
+
+/// The options checked, each error naming its option.
+fn serve_setup(a: &ServeArgs, tick_ms: u32) -> Result<(LinkSpec, ServeOptions), String> {
+    let addr = |opt: &str, s: &str| {
+        s.parse::<std::net::SocketAddr>()
+            .map_err(|_| format!("{opt}: `{s}` is not an address and port (like 127.0.0.1:1502)"))
+    };
+    if !(1..=247).contains(&a.unit) {
+        return Err(format!("--unit: {} is outside 1-247", a.unit));
+    }
+    let stale =
+        stale_after_ms(&a.stale_after, tick_ms).map_err(|e| format!("--stale-after: {e}"))?;
+    let idle =
+        units::parse_duration_ms(&a.idle_timeout).map_err(|e| format!("--idle-timeout: {e}"))?;
+    if idle == 0 {
+        return Err("--idle-timeout: must be longer than 0".into());
+    }
+    if a.max_clients == 0 {
+        return Err("--max-clients: must be at least 1".into());
+    }
+    let allow_write = match &a.allow_write_from {
+        None => AllowList::loopback(),
+        Some(s) => AllowList::parse(s).map_err(|e| format!("--allow-write-from: {e}"))?,
+    };
+    let spec = LinkSpec {
+        unit_id: a.unit,
+        word_order: match a.word_order {
+            Order::HighFirst => WordOrder::HighFirst,
+            Order::LowFirst => WordOrder::LowFirst,
+        },
+        clock: match a.clock {
+            ClockArg::Real => Clock::Free,
+            ClockArg::Sequence => Clock::Sequence,
+        },
+        stale_after_ms: stale,
+        checkpoints: false,
+    };
+    let options = ServeOptions {
+        listen: addr("--listen", &a.listen)?,
+        read_only_listen: match &a.read_only_listen {
+            Some(s) => Some(addr("--read-only-listen", s)?),
+            None => None,
+        },
+        allow_write,
+        idle_timeout: std::time::Duration::from_millis(idle),
+        max_clients: a.max_clients,
+    };
+    Ok((spec, options))
+}
+
+fn run_serve(a: &ServeArgs) -> ExitCode {
+    let fail = |e: String| {
+        eprintln!("error: {e}");
+        ExitCode::from(2)
+    };
+    let plant = match config::load(&a.config) {
+        Ok(p) => p,
+        Err(e) => return fail(e.to_string()),
+    };
+    let (spec, options) = match serve_setup(a, plant.tick_ms) {
+        Ok(x) => x,
+        Err(e) => return fail(e),
+    };
+    let link = match link::build_for(&plant, spec) {
+        Ok(l) => l,
+        Err(e) => return fail(format!("{}: {}", a.config.display(), e.message())),
+    };
+    let map = *link.map();
+    let server = match Server::start(link, &options) {
+        Ok(s) => s,
+        Err(e) => return fail(format!("cannot listen: {e}")),
+    };
+    println!("{CAUTION}\n\n{SECURITY_NOTE}\n");
+    println!(
+        "{}: unit {}, {} holding, {} input registers, {} coils; writes from {}",
+        plant.name,
+        spec.unit_id,
+        map.holding_len(),
+        map.input_len(),
+        map.coil_len(),
+        options.allow_write
+    );
+    if let Some(ro) = server.read_only_addr() {
+        println!("read-only on {ro}");
+    }
+    println!("listening on {}", server.local_addr());
+    let names = plant.species.iter().map(|s| s.name.clone()).collect();
+    let line = StatusLine::new(map, spec.word_order, names);
+    let tty = std::io::stderr().is_terminal();
+    // On a terminal, end of input (Ctrl-D) stops the server; a server
+    // started with no terminal runs until it is killed.
+    let (done_tx, done) = std::sync::mpsc::channel::<()>();
+    if std::io::stdin().is_terminal() {
+        println!("Ctrl-D stops the server.");
+        std::thread::spawn(move || {
+            let _ = std::io::copy(&mut std::io::stdin().lock(), &mut std::io::sink());
+            let _ = done_tx.send(());
+        });
+    } else {
+        std::mem::forget(done_tx);
+    }
+    while done
+        .recv_timeout(std::time::Duration::from_secs(1))
+        .is_err()
+    {
+        if tty {
+            let shared = server.shared();
+            let regs = shared.lock().link.input_registers().to_vec();
+            eprint!("\r{}\x1b[K", line.render(&regs, &shared.stats));
+        }
+    }
+    let shared = std::sync::Arc::clone(server.shared());
+    server.stop();
+    let regs = shared.lock().link.input_registers().to_vec();
+    println!("\nstopped: {}", line.render(&regs, &shared.stats));
+    ExitCode::SUCCESS
+}
+
+fn run_registers(config_path: &Path, out: &Path) -> ExitCode {
+    let plant = match config::load(config_path) {
+        Ok(p) => p,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return ExitCode::from(2);
+        }
+    };
+    match registers::write(&plant, out) {
+        Ok(files) => {
+            for f in files {
+                println!("wrote {}", f.display());
+            }
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("error: {e}");
+            ExitCode::from(2)
+        }
+    }
 }
 
 fn run_replay(
@@ -223,6 +456,8 @@ fn main() -> ExitCode {
             write_back,
             quiet,
         } => run_live(&config, &out, duration.as_deref(), write_back, quiet),
+        Command::Serve(a) => run_serve(&a),
+        Command::Registers { config, out } => run_registers(&config, &out),
         Command::Verify => {
             let results = verify::run_all();
             print!("{}", verify::table(&results));

@@ -14,7 +14,6 @@ use std::path::Path;
 use std::sync::atomic::Ordering;
 use std::time::{Duration, Instant};
 
-use holdup_kernel::modbus::{Clock, LinkSpec, WordOrder};
 use holdup_sim::serve::access::AllowList;
 use holdup_sim::serve::{ServeOptions, Server};
 use holdup_sim::{config, link};
@@ -49,13 +48,7 @@ fn run(config_text: &str, label: &str) {
     let path = dir.join("plant.toml");
     std::fs::write(&path, config_text).unwrap();
     let plant = config::load(&path).expect("the bench plant loads");
-    let spec = LinkSpec {
-        unit_id: 1,
-        word_order: WordOrder::HighFirst,
-        clock: Clock::Free,
-        stale_after_ms: 0,
-        checkpoints: false,
-    };
+    let spec = link::free_running();
     let link = link::build_for(&plant, spec).expect("the link builds");
     let count = link.map().input_len();
     let options = ServeOptions {

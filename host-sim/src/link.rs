@@ -26,6 +26,18 @@ pub type HostLink<S, const N: usize, const D: usize> = Link<S, N, R, O, I, D, LA
 /// the first tick).
 pub const DEFAULT_START_TEMPERATURE: f64 = 298.15;
 
+/// A link on its own clock with no watchdog and no checkpoints (unit 1,
+/// high word first): for a driver that ticks it itself.
+pub fn free_running() -> LinkSpec {
+    LinkSpec {
+        unit_id: 1,
+        word_order: holdup_kernel::modbus::WordOrder::HighFirst,
+        clock: holdup_kernel::modbus::Clock::Free,
+        stale_after_ms: 0,
+        checkpoints: false,
+    }
+}
+
 /// The plant's sizes, as the map sees them.
 pub fn dims(plant: &Plant) -> Dims {
     let small = |n: usize| u8::try_from(n).unwrap_or(u8::MAX);

@@ -30,7 +30,7 @@ use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant, SystemTime, UNIX_EPOCH};
 
-use holdup_kernel::modbus::{Clock, LinkSpec, WordOrder};
+use holdup_kernel::modbus::WordOrder;
 
 use self::poller::Poller;
 use self::recording::Recording;
@@ -218,13 +218,7 @@ pub fn run(req: &Request<'_>) -> Result<Outcome, LiveError> {
             .to_si(i.and_then(|i| first[i]).unwrap_or(f64::NAN));
         plant.initial.temperature = Some(if t.is_finite() && t > 0.0 { t } else { 298.15 });
     }
-    let spec = LinkSpec {
-        unit_id: 1,
-        word_order: WordOrder::HighFirst,
-        clock: Clock::Free,
-        stale_after_ms: 0,
-        checkpoints: false,
-    };
+    let spec = link::free_running();
     let link = link::build_for(&plant, spec).map_err(|e| LiveError::Kernel(e.message()))?;
     let targets = targets(&plant, &tags, link.as_ref());
     let write_back = plc.write_back;

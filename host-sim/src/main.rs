@@ -240,9 +240,9 @@ fn run_serve(a: &ServeArgs) -> ExitCode {
         eprintln!("error: {e}");
         ExitCode::from(2)
     };
-    let plant = match config::load(&a.config) {
+    let plant = match load_plant(&a.config) {
         Ok(p) => p,
-        Err(e) => return fail(e.to_string()),
+        Err(code) => return code,
     };
     let (spec, options) = match serve_setup(a, plant.tick_ms) {
         Ok(x) => x,
@@ -303,13 +303,19 @@ fn run_serve(a: &ServeArgs) -> ExitCode {
     ExitCode::SUCCESS
 }
 
+/// The plant configuration, or exit status 2 with the loader's message
+/// (file, line, key) printed.
+fn load_plant(path: &Path) -> Result<holdup_sim::plant::Plant, ExitCode> {
+    config::load(path).map_err(|e| {
+        eprintln!("error: {e}");
+        ExitCode::from(2)
+    })
+}
+
 fn run_registers(config_path: &Path, out: &Path) -> ExitCode {
-    let plant = match config::load(config_path) {
+    let plant = match load_plant(config_path) {
         Ok(p) => p,
-        Err(e) => {
-            eprintln!("error: {e}");
-            return ExitCode::from(2);
-        }
+        Err(code) => return code,
     };
     match registers::write(&plant, out) {
         Ok(files) => {
@@ -333,12 +339,9 @@ fn run_replay(
     every_ms: u64,
     quiet: bool,
 ) -> ExitCode {
-    let plant = match config::load(config_path) {
+    let plant = match load_plant(config_path) {
         Ok(p) => p,
-        Err(e) => {
-            eprintln!("error: {e}");
-            return ExitCode::from(2);
-        }
+        Err(code) => return code,
     };
     let req = replay::Request {
         plant: &plant,
@@ -375,12 +378,9 @@ fn run_live(
             return ExitCode::from(2);
         }
     };
-    let plant = match config::load(config_path) {
+    let plant = match load_plant(config_path) {
         Ok(p) => p,
-        Err(e) => {
-            eprintln!("error: {e}");
-            return ExitCode::from(2);
-        }
+        Err(code) => return code,
     };
     let req = live::Request {
         plant: &plant,

@@ -839,17 +839,25 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
             return false;
         }
         // Clamping here only keeps V within the capacity (V(z) is already).
-        let _ = self.vessel.set_state(v_new, &n_new);
-        symmetrize(&mut q);
-        if !make_positive_definite(&mut q) {
+        self.install(v_new, &n_new, q);
+        self.counters.reseeds = self.counters.reseeds.saturating_add(1);
+        true
+    }
+
+    /// Replace the mean and the covariance after a re-seed or a reset: the
+    /// covariance symmetrised and kept positive definite, pending lab
+    /// samples dropped (counted as expired: their stored sensitivities
+    /// refer to the state before).
+    fn install(&mut self, volume: S, amounts: &[S; N], mut p: [[S; D]; D]) {
+        let _ = self.vessel.set_state(volume, amounts);
+        symmetrize(&mut p);
+        if !make_positive_definite(&mut p) {
             self.counters.covariance_guarded = self.counters.covariance_guarded.saturating_add(1);
         }
-        self.p = q;
+        self.p = p;
         let dropped = u32::try_from(self.pending.len()).unwrap_or(u32::MAX);
         self.pending.clear();
         self.counters.lab_expired = self.counters.lab_expired.saturating_add(dropped);
-        self.counters.reseeds = self.counters.reseeds.saturating_add(1);
-        true
     }
 
     /// Reset the concentration of `species` to `c` (mol/m³) with standard
@@ -895,15 +903,7 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
         if !all_finite(p.as_flattened()) || !n[species].is_finite() {
             return false;
         }
-        let _ = self.vessel.set_state(v, &n);
-        symmetrize(&mut p);
-        if !make_positive_definite(&mut p) {
-            self.counters.covariance_guarded = self.counters.covariance_guarded.saturating_add(1);
-        }
-        self.p = p;
-        let dropped = u32::try_from(self.pending.len()).unwrap_or(u32::MAX);
-        self.pending.clear();
-        self.counters.lab_expired = self.counters.lab_expired.saturating_add(dropped);
+        self.install(v, &n, p);
         true
     }
 

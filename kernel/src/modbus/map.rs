@@ -214,6 +214,17 @@ pub struct Entry {
     pub kind: Kind,
 }
 
+impl Entry {
+    const fn new(table: Table, address: u16, item: Item, kind: Kind) -> Self {
+        Self {
+            table,
+            address,
+            item,
+            kind,
+        }
+    }
+}
+
 /// The plant's sizes that fix the map.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 #[cfg_attr(feature = "defmt", derive(defmt::Format))]
@@ -328,12 +339,7 @@ impl RegisterMap {
     }
 
     fn holding_entries(&self) -> impl Iterator<Item = Entry> + '_ {
-        let h = |address, item, kind| Entry {
-            table: Table::Holding,
-            address,
-            item,
-            kind,
-        };
+        let h = |address, item, kind| Entry::new(Table::Holding, address, item, kind);
         let n = self.dims.species;
         let header = [
             h(0, Item::InputSequence, Kind::U16),
@@ -364,12 +370,7 @@ impl RegisterMap {
     }
 
     fn input_entries(&self) -> impl Iterator<Item = Entry> + '_ {
-        let r = |address, item, kind| Entry {
-            table: Table::Input,
-            address,
-            item,
-            kind,
-        };
+        let r = |address, item, kind| Entry::new(Table::Input, address, item, kind);
         let header = [
             r(0, Item::MapVersion, Kind::U16),
             r(1, Item::WordOrderCode, Kind::U16),
@@ -419,12 +420,7 @@ impl RegisterMap {
     }
 
     fn coil_entries(&self) -> impl Iterator<Item = Entry> {
-        let c = |address, item| Entry {
-            table: Table::Coil,
-            address,
-            item,
-            kind: Kind::Bit,
-        };
+        let c = |address, item| Entry::new(Table::Coil, address, item, Kind::Bit);
         [
             c(0, Item::ResetFromLab),
             c(1, Item::SaveCheckpoint),

@@ -1,0 +1,93 @@
+//! The two peripherals of QEMU's `mps2-an386` the gateway uses, both from
+//! ARM's Cortex-M System Design Kit (addresses from the AN386 memory map as
+//! QEMU builds it, `hw/arm/mps2.c`): the APB timer 0 at `0x4000_0000`,
+//! free-running, as the gateway's clock, and the APB UART 0 at
+//! `0x4000_4000`, the Modbus line.
+
+use core::ptr::{read_volatile, write_volatile};
+
+/// The peripheral clock (PCLK) of the board, Hz.
+pub const PCLK_HZ: u32 = 25_000_000;
+/// Line speed, baud.
+pub const BAUD: u32 = 115_200;
+
+const TIMER0: usize = 0x4000_0000;
+const TIMER_CTRL: usize = 0x00;
+const TIMER_VALUE: usize = 0x04;
+const TIMER_RELOAD: usize = 0x08;
+
+const UART0: usize = 0x4000_4000;
+const UART_DATA: usize = 0x00;
+const UART_STATE: usize = 0x04;
+const UART_CTRL: usize = 0x08;
+const UART_BAUDDIV: usize = 0x10;
+const STATE_TX_FULL: u32 = 1 << 0;
+#[cfg_attr(feature = "gateway-load", allow(dead_code))]
+const STATE_RX_FULL: u32 = 1 << 1;
+const CTRL_TX_EN: u32 = 1 << 0;
+const CTRL_RX_EN: u32 = 1 << 1;
+
+fn read(addr: usize) -> u32 {
+    // SAFETY: `addr` is one of the register addresses above, a 32-bit
+    // device register of the board; reading it has no effect on memory.
+    unsafe { read_volatile(addr as *const u32) }
+}
+
+fn write(addr: usize, x: u32) {
+    // SAFETY: as in `read`: a device register, not memory Rust owns.
+    unsafe { write_volatile(addr as *mut u32, x) }
+}
+
+/// Timer 0 counting down from `u32::MAX` at PCLK, extended to 64 bits:
+/// [`Clock::now`] must run at least once per wrap (171 s), which the main
+/// loop does many times a millisecond.
+pub struct Clock {
+    last: u32,
+    total: u64,
+}
+
+impl Clock {
+    /// Start the timer.
+    pub fn start() -> Self {
+        write(TIMER0 + TIMER_CTRL, 0);
+        write(TIMER0 + TIMER_RELOAD, u32::MAX);
+        write(TIMER0 + TIMER_VALUE, u32::MAX);
+        write(TIMER0 + TIMER_CTRL, 1);
+        Self { last: 0, total: 0 }
+    }
+
+    /// Counts (of PCLK, 40 ns) since [`Clock::start`].
+    pub fn now(&mut self) -> u64 {
+        let up = u32::MAX - read(TIMER0 + TIMER_VALUE);
+        self.total += u64::from(up.wrapping_sub(self.last));
+        self.last = up;
+        self.total
+    }
+}
+
+/// UART 0: 115,200 baud (divider PCLK / baud), receiver and transmitter
+/// on, no interrupts (polled by the main loop).
+pub struct Uart;
+
+impl Uart {
+    /// Configure the UART.
+    pub fn start() -> Self {
+        write(UART0 + UART_BAUDDIV, PCLK_HZ / BAUD);
+        write(UART0 + UART_CTRL, CTRL_TX_EN | CTRL_RX_EN);
+        Self
+    }
+
+    /// The byte in the receive buffer, if any.
+    #[cfg_attr(feature = "gateway-load", allow(dead_code))]
+    pub fn read(&mut self) -> Option<u8> {
+        (read(UART0 + UART_STATE) & STATE_RX_FULL != 0).then(|| read(UART0 + UART_DATA) as u8)
+    }
+
+    /// Send `bytes`, waiting while the transmit buffer is full.
+    pub fn write(&mut self, bytes: &[u8]) {
+        for &b in bytes {
+            while read(UART0 + UART_STATE) & STATE_TX_FULL != 0 {}
+            write(UART0 + UART_DATA, u32::from(b));
+        }
+    }
+}

@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # The gateway against a real Modbus client over a socket, bit for bit.
 #
-#   bash kernel/firmware/modbus-check.sh [TICKS]     (default 900)
+#   bash kernel/firmware/modbus-check.sh [TICKS]     (default 660)
 #
 # Builds the gateway (`holdup-gateway`, Clock::Sequence) and the host
 # program `host/gateway-expect` (the PLC's writes and the expected input
@@ -23,7 +23,7 @@
 # pymodbus 3.8.6 (`pip install pymodbus==3.8.6`).
 set -euo pipefail
 cd "$(dirname "$0")"
-ticks="${1:-900}"
+ticks="${1:-660}"
 root="$(cd ../.. && pwd)"
 
 target_dir="${CARGO_TARGET_DIR:-target}"

@@ -5,7 +5,8 @@
 //! the kernel's `Link` (the register map; frame codec, CRC-16/MODBUS and
 //! exceptions by `rmodbus`). At start the gateway writes the recipe's
 //! constant feeds into the holding registers; the PLC writes the rest (see
-//! `gateway::plc`). One main loop, no interrupts:
+//! `gateway::plc`). One main loop, no interrupt handlers (it sleeps in
+//! `WFI` when idle, woken by the UART or the alarm timer: `gateway::hw`):
 //! * bytes go from the UART (or, in the load mode, the injector) into the
 //!   receiver with their arrival time on timer 0; a frame ends after 1.75 ms
 //!   of silence; `Link::handle` answers it and the answer goes back out;
@@ -147,6 +148,8 @@ fn main() -> ! {
         }
     };
     let mut s = Server::new(link);
+    // Interrupts stay masked: the wake-ups of `hw::wait` only end a WFI.
+    cortex_m::interrupt::disable();
     loop {
         let now = clock.now();
         if let Some(b) = uart.read() {
@@ -159,7 +162,15 @@ fn main() -> ! {
         }
         if let Some((ms, _)) = s.due(now) {
             s.tick(ms);
+            continue;
         }
+        // Nothing to do: sleep until a byte, the frame's end or the tick.
+        let tick = matches!(CLOCK, Clock::Free).then_some(s.next_due);
+        let deadline = match (s.rx.deadline(), tick) {
+            (Some(a), Some(b)) => Some(a.min(b)),
+            (a, b) => a.or(b),
+        };
+        hw::wait(&mut clock, deadline);
     }
 }
 

@@ -1,8 +1,14 @@
-//! The two peripherals of QEMU's `mps2-an386` the gateway uses, both from
-//! ARM's Cortex-M System Design Kit (addresses from the AN386 memory map as
-//! QEMU builds it, `hw/arm/mps2.c`): the APB timer 0 at `0x4000_0000`,
-//! free-running, as the gateway's clock, and the APB UART 0 at
-//! `0x4000_4000`, the Modbus line.
+//! The peripherals of QEMU's `mps2-an386` the gateway uses, from ARM's
+//! Cortex-M System Design Kit (addresses and interrupt numbers from the
+//! AN386 memory map as QEMU builds it, `hw/arm/mps2.c`): the APB timer 0
+//! at `0x4000_0000`, free-running, as the gateway's clock; the APB timer 1
+//! at `0x4000_1000` (IRQ 9) as the alarm that ends an idle wait; the APB
+//! UART 0 at `0x4000_4000` (receive IRQ 0), the Modbus line.
+//!
+//! No interrupt handler runs: interrupts stay masked (PRIMASK) and the
+//! server waits for the UART's receive interrupt or the alarm with `WFI`,
+//! which wakes on an enabled interrupt becoming pending even while masked
+//! (ARMv7-M architecture). Then it polls.
 
 use core::ptr::{read_volatile, write_volatile};
 
@@ -16,13 +22,25 @@ const TIMER_CTRL: usize = 0x00;
 const TIMER_VALUE: usize = 0x04;
 const TIMER_RELOAD: usize = 0x08;
 
+const TIMER1: usize = 0x4000_1000;
+const TIMER_INTCLEAR: usize = 0x0C;
+const TIMER_CTRL_EN: u32 = 1 << 0;
+const TIMER_CTRL_IRQ_EN: u32 = 1 << 3;
+const IRQ_UART0_RX: u32 = 0;
+const IRQ_TIMER1: u32 = 9;
+/// NVIC interrupt set-enable and clear-pending registers (IRQs 0–31).
+const NVIC_ISER0: usize = 0xE000_E100;
+const NVIC_ICPR0: usize = 0xE000_E280;
+
 const UART0: usize = 0x4000_4000;
+const UART_INTCLEAR: usize = 0x0C;
+const CTRL_RX_IRQ_EN: u32 = 1 << 3;
+const INT_RX: u32 = 1 << 1;
 const UART_DATA: usize = 0x00;
 const UART_STATE: usize = 0x04;
 const UART_CTRL: usize = 0x08;
 const UART_BAUDDIV: usize = 0x10;
 const STATE_TX_FULL: u32 = 1 << 0;
-#[cfg_attr(feature = "gateway-load", allow(dead_code))]
 const STATE_RX_FULL: u32 = 1 << 1;
 const CTRL_TX_EN: u32 = 1 << 0;
 const CTRL_RX_EN: u32 = 1 << 1;
@@ -66,14 +84,14 @@ impl Clock {
 }
 
 /// UART 0: 115,200 baud (divider PCLK / baud), receiver and transmitter
-/// on, no interrupts (polled by the main loop).
+/// on, the receive interrupt raised (as a wake-up: see the module).
 pub struct Uart;
 
 impl Uart {
     /// Configure the UART.
     pub fn start() -> Self {
         write(UART0 + UART_BAUDDIV, PCLK_HZ / BAUD);
-        write(UART0 + UART_CTRL, CTRL_TX_EN | CTRL_RX_EN);
+        write(UART0 + UART_CTRL, CTRL_TX_EN | CTRL_RX_EN | CTRL_RX_IRQ_EN);
         Self
     }
 
@@ -90,4 +108,35 @@ impl Uart {
             write(UART0 + UART_DATA, u32::from(b));
         }
     }
+}
+
+/// Sleep until a byte arrives or timer `deadline` (counts of [`Clock`])
+/// passes; `None`: until a byte arrives. Returns at once if a byte is
+/// waiting or the deadline has passed. Interrupts must be masked.
+#[cfg_attr(feature = "gateway-load", allow(dead_code))]
+pub fn wait(clock: &mut Clock, deadline: Option<u64>) {
+    // Clear the wake-ups of before, then look: a byte that arrives after
+    // the look leaves its interrupt pending, and WFI returns at once.
+    write(UART0 + UART_INTCLEAR, INT_RX);
+    write(NVIC_ICPR0, (1 << IRQ_UART0_RX) | (1 << IRQ_TIMER1));
+    if read(UART0 + UART_STATE) & STATE_RX_FULL != 0 {
+        return;
+    }
+    if let Some(d) = deadline {
+        let now = clock.now();
+        if d <= now {
+            return;
+        }
+        // At most 2^32 − 1 counts (171 s): a longer wait just wakes early.
+        let counts = u32::try_from(d - now).unwrap_or(u32::MAX);
+        write(TIMER1 + TIMER_CTRL, 0);
+        write(TIMER1 + TIMER_INTCLEAR, 1);
+        write(TIMER1 + TIMER_VALUE, counts);
+        write(TIMER1 + TIMER_RELOAD, counts);
+        write(TIMER1 + TIMER_CTRL, TIMER_CTRL_EN | TIMER_CTRL_IRQ_EN);
+    }
+    write(NVIC_ISER0, (1 << IRQ_UART0_RX) | (1 << IRQ_TIMER1));
+    cortex_m::asm::wfi();
+    write(TIMER1 + TIMER_CTRL, 0);
+    write(TIMER1 + TIMER_INTCLEAR, 1);
 }

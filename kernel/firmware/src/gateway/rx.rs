@@ -56,6 +56,12 @@ impl Receiver {
         }
     }
 
+    /// When the frame being received will be complete if no byte follows.
+    #[cfg_attr(feature = "gateway-load", allow(dead_code))]
+    pub fn deadline(&self) -> Option<u64> {
+        (self.len > 0).then_some(self.last + SILENCE_COUNTS)
+    }
+
     /// Whether a frame is complete at `t` (not yet taken).
     pub fn complete_at(&self, t: u64) -> bool {
         self.len > 0 && t.saturating_sub(self.last) >= SILENCE_COUNTS

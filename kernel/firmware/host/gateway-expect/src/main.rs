@@ -4,7 +4,7 @@
 //! and prints, one JSON object a line, each tick's writes and the input
 //! registers the gateway must then serve, bit for bit.
 //!
-//!     gateway-expect [TICKS]     (default 900)
+//!     gateway-expect [TICKS]     (default 660)
 //!
 //! The schedule is the observed scenario's instruments (`Instruments`: raw
 //! 4–20 mA readings with their noise) compressed so that a short run meets
@@ -76,7 +76,7 @@ fn list(xs: &[u16]) -> String {
 
 fn main() -> ExitCode {
     let ticks: u32 = match std::env::args().nth(1).map(|a| a.parse()) {
-        None => 900,
+        None => 660,
         Some(Ok(n)) => n,
         Some(Err(_)) => {
             eprintln!("usage: gateway-expect [TICKS]");

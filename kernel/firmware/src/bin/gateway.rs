@@ -5,11 +5,11 @@
 //! the kernel's `Link` (the register map; frame codec, CRC-16/MODBUS and
 //! exceptions by `rmodbus`). At start the gateway writes the recipe's
 //! constant feeds into the holding registers; the PLC writes the rest (see
-//! `gateway::plc`). One main loop, no interrupt handlers (it sleeps in
-//! `WFI` when idle, woken by the UART or the alarm timer: `gateway::hw`):
-//! * bytes go from the UART (or, in the load mode, the injector) into the
-//!   receiver with their arrival time on timer 0; a frame ends after 1.75 ms
-//!   of silence; `Link::handle` answers it and the answer goes back out;
+//! `gateway::plc`). One main loop, which sleeps in `WFI` when idle:
+//! * bytes go from the UART's receive interrupt (or, in the load mode, the
+//!   injector) into the receiver with their arrival time on timer 0; a
+//!   frame ends after 1.75 ms of silence; the main loop hands it to
+//!   `Link::handle` and writes the answer back out;
 //! * `Clock::Sequence` (the default): one tick each time the PLC raises the
 //!   input sequence, at `now = ticks · 1 s`; `Clock::Free` (features
 //!   `gateway-free-clock`, `gateway-load`): one tick every 1 s of timer 0,
@@ -102,7 +102,6 @@ fn link() -> Result<GatewayLink, Error> {
 /// The server's state between frames and ticks.
 struct Server {
     link: GatewayLink,
-    rx: Receiver,
     response: Response,
     ticks: u32,
     next_due: u64,
@@ -112,7 +111,6 @@ impl Server {
     fn new(link: GatewayLink) -> Self {
         Self {
             link,
-            rx: Receiver::new(),
             response: Response::new(),
             ticks: 0,
             next_due: FIRST_TICK,
@@ -137,10 +135,125 @@ impl Server {
 }
 
 #[cfg(not(feature = "gateway-load"))]
+mod serve {
+    //! The server's receive path: the UART's receive interrupt stamps each
+    //! byte with timer 0 and pushes it into the receiver; the main loop
+    //! takes whole frames.
+
+    use core::cell::RefCell;
+    use cortex_m::interrupt::{self, Mutex};
+
+    use crate::gateway::hw;
+    use crate::gateway::rx::{Receiver, MAX_RTU};
+
+    /// What the interrupt handler and the main loop share.
+    pub struct Line {
+        pub clock: hw::Clock,
+        pub uart: hw::Uart,
+        pub rx: Receiver,
+        /// Bytes received so far (wrapping): the main loop sleeps only if
+        /// none came since it last looked.
+        pub bytes: u32,
+    }
+
+    pub static LINE: Mutex<RefCell<Option<Line>>> = Mutex::new(RefCell::new(None));
+
+    /// A frame taken out of the receiver.
+    pub struct Frame {
+        pub buf: [u8; MAX_RTU],
+        pub len: usize,
+    }
+
+    /// The state of the line at one look: the time, a whole frame if one
+    /// is complete, when the frame being received ends if nothing follows,
+    /// and the byte count.
+    pub fn look(frame: &mut Frame) -> Option<(u64, bool, Option<u64>, u32)> {
+        interrupt::free(|cs| {
+            let mut line = LINE.borrow(cs).borrow_mut();
+            let line = line.as_mut()?;
+            let now = line.clock.now();
+            let mut got = false;
+            if let Some(f) = line.rx.take(now) {
+                if let Some(dst) = frame.buf.get_mut(..f.len()) {
+                    dst.copy_from_slice(f);
+                    frame.len = f.len();
+                    got = true;
+                }
+            }
+            Some((now, got, line.rx.deadline(), line.bytes))
+        })
+    }
+
+    /// The receive interrupt: every byte waiting, stamped.
+    pub fn on_receive() {
+        interrupt::free(|cs| {
+            if let Some(line) = LINE.borrow(cs).borrow_mut().as_mut() {
+                hw::uart_rx_acknowledge();
+                while let Some(b) = line.uart.read() {
+                    let now = line.clock.now();
+                    line.rx.push(b, now);
+                    line.bytes = line.bytes.wrapping_add(1);
+                }
+            }
+        });
+    }
+
+    /// Send a response (the UART's transmit side is the main loop's).
+    pub fn send(bytes: &[u8]) {
+        let mut tx = hw::Uart;
+        tx.write(bytes);
+    }
+
+    /// Sleep until a byte arrives or `deadline` (timer counts) passes,
+    /// unless a byte came since the look that counted `seen`.
+    pub fn sleep(seen: u32, deadline: Option<u64>) {
+        interrupt::disable();
+        let idle = interrupt::free(|cs| {
+            let mut line = LINE.borrow(cs).borrow_mut();
+            let Some(line) = line.as_mut() else {
+                return false;
+            };
+            if line.bytes != seen {
+                return false;
+            }
+            match deadline {
+                Some(d) => {
+                    let now = line.clock.now();
+                    if d <= now {
+                        return false;
+                    }
+                    hw::alarm_in(d - now);
+                    true
+                }
+                None => true,
+            }
+        });
+        if idle {
+            // Wakes on the pending interrupt even while masked; its handler
+            // runs when interrupts are enabled again, below.
+            cortex_m::asm::wfi();
+        }
+        // SAFETY: no critical section is open here (the one above ended),
+        // so enabling interrupts breaks none.
+        unsafe { interrupt::enable() };
+    }
+}
+
+#[cfg(not(feature = "gateway-load"))]
+#[cortex_m_rt::exception]
+unsafe fn DefaultHandler(irqn: i16) {
+    if irqn == hw::UART_RX_IRQ {
+        serve::on_receive();
+    } else if irqn == hw::ALARM_IRQ {
+        hw::alarm_stop();
+    }
+}
+
+#[cfg(not(feature = "gateway-load"))]
 #[entry]
 fn main() -> ! {
-    let mut clock = hw::Clock::start();
-    let mut uart = hw::Uart::start();
+    let clock = hw::Clock::start();
+    let uart = hw::Uart::start();
     let Ok(link) = link() else {
         // A configuration the kernel refuses: nothing to serve.
         loop {
@@ -148,17 +261,28 @@ fn main() -> ! {
         }
     };
     let mut s = Server::new(link);
-    // Interrupts stay masked: the wake-ups of `hw::wait` only end a WFI.
-    cortex_m::interrupt::disable();
+    cortex_m::interrupt::free(|cs| {
+        serve::LINE.borrow(cs).replace(Some(serve::Line {
+            clock,
+            uart,
+            rx: Receiver::new(),
+            bytes: 0,
+        }));
+    });
+    hw::enable_interrupts();
+    let mut frame = serve::Frame {
+        buf: [0; gateway::rx::MAX_RTU],
+        len: 0,
+    };
     loop {
-        let now = clock.now();
-        if let Some(b) = uart.read() {
-            s.rx.push(b, now);
+        let Some((now, got, end, seen)) = serve::look(&mut frame) else {
             continue;
-        }
-        if let Some(frame) = s.rx.take(now) {
-            let _ = s.link.handle(frame, Framing::Rtu, &mut s.response);
-            uart.write(&s.response);
+        };
+        if got {
+            let request = frame.buf.get(..frame.len).unwrap_or(&[]);
+            let _ = s.link.handle(request, Framing::Rtu, &mut s.response);
+            serve::send(&s.response);
+            continue;
         }
         if let Some((ms, _)) = s.due(now) {
             s.tick(ms);
@@ -166,11 +290,11 @@ fn main() -> ! {
         }
         // Nothing to do: sleep until a byte, the frame's end or the tick.
         let tick = matches!(CLOCK, Clock::Free).then_some(s.next_due);
-        let deadline = match (s.rx.deadline(), tick) {
+        let deadline = match (end, tick) {
             (Some(a), Some(b)) => Some(a.min(b)),
             (a, b) => a.or(b),
         };
-        hw::wait(&mut clock, deadline);
+        serve::sleep(seen, deadline);
     }
 }
 
@@ -279,6 +403,7 @@ mod load_run {
             return false;
         };
         let mut s = Server::new(link);
+        let mut rx = Receiver::new();
         let map = *s.link.map();
         let mut inst = Instruments::new(&expected::PLANT_LEVEL, &expected::LAB_VALUES);
         let mut plc = Plc::default();
@@ -294,8 +419,8 @@ mod load_run {
         let mut requests_while = 0u32;
         while s.ticks < LOAD_TICKS {
             let now = clock.now();
-            inj.receive(now, &mut s.rx);
-            if let Some(frame) = s.rx.take(now) {
+            inj.receive(now, &mut rx);
+            if let Some(frame) = rx.take(now) {
                 let kind = Injector::kind_of(frame);
                 let a = meter.now();
                 let served = s.link.handle(frame, Framing::Rtu, &mut s.response);

@@ -5,10 +5,10 @@
 //! at `0x4000_1000` (IRQ 9) as the alarm that ends an idle wait; the APB
 //! UART 0 at `0x4000_4000` (receive IRQ 0), the Modbus line.
 //!
-//! No interrupt handler runs: interrupts stay masked (PRIMASK) and the
-//! server waits for the UART's receive interrupt or the alarm with `WFI`,
-//! which wakes on an enabled interrupt becoming pending even while masked
-//! (ARMv7-M architecture). Then it polls.
+//! The server takes each received byte in the UART's receive interrupt
+//! (the CMSDK UART holds one byte: at 115,200 baud the next one comes
+//! 95 µs later, less than a tick) and sleeps in `WFI` when idle, woken by
+//! that interrupt or by timer 1's alarm (the frame's end, the next tick).
 
 use core::ptr::{read_volatile, write_volatile};
 
@@ -28,9 +28,8 @@ const TIMER_CTRL_EN: u32 = 1 << 0;
 const TIMER_CTRL_IRQ_EN: u32 = 1 << 3;
 const IRQ_UART0_RX: u32 = 0;
 const IRQ_TIMER1: u32 = 9;
-/// NVIC interrupt set-enable and clear-pending registers (IRQs 0–31).
+/// NVIC interrupt set-enable register (IRQs 0–31).
 const NVIC_ISER0: usize = 0xE000_E100;
-const NVIC_ICPR0: usize = 0xE000_E280;
 
 const UART0: usize = 0x4000_4000;
 const UART_INTCLEAR: usize = 0x0C;
@@ -110,33 +109,41 @@ impl Uart {
     }
 }
 
-/// Sleep until a byte arrives or timer `deadline` (counts of [`Clock`])
-/// passes; `None`: until a byte arrives. Returns at once if a byte is
-/// waiting or the deadline has passed. Interrupts must be masked.
+/// Enable the two wake-ups in the NVIC: the UART's receive interrupt and
+/// timer 1's alarm.
 #[cfg_attr(feature = "gateway-load", allow(dead_code))]
-pub fn wait(clock: &mut Clock, deadline: Option<u64>) {
-    // Clear the wake-ups of before, then look: a byte that arrives after
-    // the look leaves its interrupt pending, and WFI returns at once.
-    write(UART0 + UART_INTCLEAR, INT_RX);
-    write(NVIC_ICPR0, (1 << IRQ_UART0_RX) | (1 << IRQ_TIMER1));
-    if read(UART0 + UART_STATE) & STATE_RX_FULL != 0 {
-        return;
-    }
-    if let Some(d) = deadline {
-        let now = clock.now();
-        if d <= now {
-            return;
-        }
-        // At most 2^32 − 1 counts (171 s): a longer wait just wakes early.
-        let counts = u32::try_from(d - now).unwrap_or(u32::MAX);
-        write(TIMER1 + TIMER_CTRL, 0);
-        write(TIMER1 + TIMER_INTCLEAR, 1);
-        write(TIMER1 + TIMER_VALUE, counts);
-        write(TIMER1 + TIMER_RELOAD, counts);
-        write(TIMER1 + TIMER_CTRL, TIMER_CTRL_EN | TIMER_CTRL_IRQ_EN);
-    }
+pub fn enable_interrupts() {
     write(NVIC_ISER0, (1 << IRQ_UART0_RX) | (1 << IRQ_TIMER1));
-    cortex_m::asm::wfi();
+}
+
+/// The interrupt number of the UART's receive interrupt.
+#[cfg_attr(feature = "gateway-load", allow(dead_code))]
+pub const UART_RX_IRQ: i16 = IRQ_UART0_RX as i16;
+/// The interrupt number of timer 1.
+#[cfg_attr(feature = "gateway-load", allow(dead_code))]
+pub const ALARM_IRQ: i16 = IRQ_TIMER1 as i16;
+
+/// Acknowledge the UART's receive interrupt (in its handler, before
+/// reading the byte: a byte arriving after the read raises it again).
+#[cfg_attr(feature = "gateway-load", allow(dead_code))]
+pub fn uart_rx_acknowledge() {
+    write(UART0 + UART_INTCLEAR, INT_RX);
+}
+
+/// Stop timer 1 and acknowledge its interrupt.
+#[cfg_attr(feature = "gateway-load", allow(dead_code))]
+pub fn alarm_stop() {
     write(TIMER1 + TIMER_CTRL, 0);
     write(TIMER1 + TIMER_INTCLEAR, 1);
+}
+
+/// Raise timer 1's interrupt in `counts` (at most 2^32 − 1: 171 s; a
+/// longer wait just wakes early).
+#[cfg_attr(feature = "gateway-load", allow(dead_code))]
+pub fn alarm_in(counts: u64) {
+    let counts = u32::try_from(counts).unwrap_or(u32::MAX).max(1);
+    alarm_stop();
+    write(TIMER1 + TIMER_VALUE, counts);
+    write(TIMER1 + TIMER_RELOAD, counts);
+    write(TIMER1 + TIMER_CTRL, TIMER_CTRL_EN | TIMER_CTRL_IRQ_EN);
 }

@@ -169,7 +169,7 @@ mod serve {
     /// and the byte count.
     pub fn look(frame: &mut Frame) -> Option<(u64, bool, Option<u64>, u32)> {
         interrupt::free(|cs| {
-            let mut line = LINE.borrow(cs).borrow_mut();
+            let mut line = LINE.borrow(cs).try_borrow_mut().ok()?;
             let line = line.as_mut()?;
             let now = line.clock.now();
             let mut got = false;
@@ -187,7 +187,10 @@ mod serve {
     /// The receive interrupt: every byte waiting, stamped.
     pub fn on_receive() {
         interrupt::free(|cs| {
-            if let Some(line) = LINE.borrow(cs).borrow_mut().as_mut() {
+            let Ok(mut line) = LINE.borrow(cs).try_borrow_mut() else {
+                return;
+            };
+            if let Some(line) = line.as_mut() {
                 hw::uart_rx_acknowledge();
                 while let Some(b) = line.uart.read() {
                     let now = line.clock.now();
@@ -209,7 +212,9 @@ mod serve {
     pub fn sleep(seen: u32, deadline: Option<u64>) {
         interrupt::disable();
         let idle = interrupt::free(|cs| {
-            let mut line = LINE.borrow(cs).borrow_mut();
+            let Ok(mut line) = LINE.borrow(cs).try_borrow_mut() else {
+                return false;
+            };
             let Some(line) = line.as_mut() else {
                 return false;
             };
@@ -262,12 +267,15 @@ fn main() -> ! {
     };
     let mut s = Server::new(link);
     cortex_m::interrupt::free(|cs| {
-        serve::LINE.borrow(cs).replace(Some(serve::Line {
-            clock,
-            uart,
-            rx: Receiver::new(),
-            bytes: 0,
-        }));
+        // Nothing else holds it yet (interrupts are not enabled).
+        if let Ok(mut line) = serve::LINE.borrow(cs).try_borrow_mut() {
+            *line = Some(serve::Line {
+                clock,
+                uart,
+                rx: Receiver::new(),
+                bytes: 0,
+            });
+        }
     });
     hw::enable_interrupts();
     let mut frame = serve::Frame {

@@ -394,8 +394,10 @@ impl<
         };
         let nan = spec.word_order.split(NAN_BITS);
         let first = usize::from(map.inlet_flow_address(0));
-        for pair in link.holding[first..usize::from(map.holding_len())].chunks_exact_mut(2) {
-            pair.copy_from_slice(&nan);
+        if let Some(analog) = link.holding.get_mut(first..usize::from(map.holding_len())) {
+            for pair in analog.chunks_exact_mut(2) {
+                pair.copy_from_slice(&nan);
+            }
         }
         link.put_u32(6, NAN_BITS);
         link.put_u32(8, NAN_BITS);
@@ -430,12 +432,12 @@ impl<
 
     /// The holding registers in use (what the PLC wrote).
     pub fn holding_registers(&self) -> &[u16] {
-        &self.holding[..usize::from(self.map.holding_len())]
+        used(&self.holding, self.map.holding_len())
     }
 
     /// The input registers in use (what the PLC reads).
     pub fn input_registers(&self) -> &[u16] {
-        &self.input[..usize::from(self.map.input_len())]
+        used(&self.input, self.map.input_len())
     }
 
     /// Write holding registers from `address` on, as a write request
@@ -531,11 +533,9 @@ impl<
         let func = frame.func;
         let result = match (func, frame.get_external_read()?) {
             (ModbusFunction::GetHoldings, Read::Words(w)) => {
-                read_words(&self.holding[..usize::from(self.map.holding_len())], w)
+                read_words(self.holding_registers(), w)
             }
-            (ModbusFunction::GetInputs, Read::Words(w)) => {
-                read_words(&self.input[..usize::from(self.map.input_len())], w)
-            }
+            (ModbusFunction::GetInputs, Read::Words(w)) => read_words(self.input_registers(), w),
             (ModbusFunction::GetCoils, Read::Bits(b)) => {
                 read_bits(self.coils, self.map.coil_len(), b)
             }
@@ -561,11 +561,14 @@ impl<
         if a + n > usize::from(self.map.holding_len()) {
             return Err(ErrorKind::IllegalDataAddress);
         }
-        for (dst, src) in self.holding[a..a + n]
-            .iter_mut()
-            .zip(w.data.chunks_exact(2))
-        {
-            *dst = u16::from_be_bytes([src[0], src[1]]);
+        let dst = self
+            .holding
+            .get_mut(a..a + n)
+            .ok_or(ErrorKind::IllegalDataAddress)?;
+        for (dst, src) in dst.iter_mut().zip(w.data.chunks_exact(2)) {
+            if let [hi, lo] = *src {
+                *dst = u16::from_be_bytes([hi, lo]);
+            }
         }
         Ok(())
     }
@@ -580,8 +583,11 @@ impl<
         }
         let mut coils = self.coils;
         for k in 0..n {
-            let on = b.data[k / 8] & (1 << (k % 8)) != 0;
-            let bit = 1u8 << (a + k);
+            let on = b.data.get(k / 8).is_some_and(|x| x & (1 << (k % 8)) != 0);
+            let bit = u32::try_from(a + k)
+                .ok()
+                .and_then(|s| 1u8.checked_shl(s))
+                .unwrap_or(0);
             if on && bit == COIL_SAVE && !self.spec.checkpoints {
                 return Err(ErrorKind::SlaveDeviceFailure);
             }
@@ -597,9 +603,8 @@ impl<
 
     fn get_u32(&self, a: u16) -> u32 {
         let a = usize::from(a);
-        self.spec
-            .word_order
-            .join([self.holding[a], self.holding[a + 1]])
+        let word = |k: usize| self.holding.get(k).copied().unwrap_or(0);
+        self.spec.word_order.join([word(a), word(a + 1)])
     }
 
     fn get_f32(&self, a: u16) -> S {
@@ -607,15 +612,11 @@ impl<
     }
 
     fn put_u32(&mut self, a: u16, x: u32) {
-        let a = usize::from(a);
-        let w = self.spec.word_order.split(x);
-        self.holding[a..a + 2].copy_from_slice(&w);
+        put_words(&mut self.holding, a, self.spec.word_order.split(x));
     }
 
     fn out_u32(&mut self, a: u16, x: u32) {
-        let a = usize::from(a);
-        let w = self.spec.word_order.split(x);
-        self.input[a..a + 2].copy_from_slice(&w);
+        put_words(&mut self.input, a, self.spec.word_order.split(x));
     }
 
     fn out_f32(&mut self, a: u16, x: S) {
@@ -645,19 +646,27 @@ impl<
         for (k, q) in (0u8..d.inlets).zip(r.inlet_flows.iter_mut()) {
             *q = pick(
                 m.inlet_flow_address(k),
-                ch.inlet_flows[usize::from(k)].is_some(),
+                ch.inlet_flows
+                    .get(usize::from(k))
+                    .is_some_and(Option::is_some),
             );
         }
         for (k, row) in (0u8..d.inlets).zip(r.feed.iter_mut()) {
             for (i, c) in (0u8..).zip(row.iter_mut()) {
-                let conditioned = ch.feed[usize::from(k)][usize::from(i)].is_some();
+                let conditioned = ch
+                    .feed
+                    .get(usize::from(k))
+                    .and_then(|row| row.get(usize::from(i)))
+                    .is_some_and(Option::is_some);
                 *c = pick(m.feed_address(k, i), conditioned);
             }
         }
         for (k, q) in (0u8..d.outlets).zip(r.outlet_flows.iter_mut()) {
             *q = pick(
                 m.outlet_flow_address(k),
-                ch.outlet_flows[usize::from(k)].is_some(),
+                ch.outlet_flows
+                    .get(usize::from(k))
+                    .is_some_and(Option::is_some),
             );
         }
         r
@@ -788,7 +797,9 @@ impl<
         self.out_u32(11, reasons);
         let m = self.map;
         for (i, q) in (0u8..).zip(conc_q.iter()) {
-            self.input[usize::from(m.quality_address(i))] = quality_code(*q);
+            if let Some(r) = self.input.get_mut(usize::from(m.quality_address(i))) {
+                *r = quality_code(*q);
+            }
         }
         let e = self.sensor.estimate();
         let a = m.holdup_address();
@@ -849,6 +860,20 @@ pub fn well_formed(request: &[u8], framing: Framing) -> bool {
     }
 }
 
+/// The first `len` registers of a table (all of it if `len` is past its
+/// end, which the map's construction rules out).
+fn used(table: &[u16; MAX_REGISTERS], len: u16) -> &[u16] {
+    table.get(..usize::from(len)).unwrap_or(table)
+}
+
+/// Two registers from address `a` (nothing past the table's end).
+fn put_words(table: &mut [u16; MAX_REGISTERS], a: u16, w: [u16; 2]) {
+    let a = usize::from(a);
+    if let Some(dst) = table.get_mut(a..a + 2) {
+        dst.copy_from_slice(&w);
+    }
+}
+
 fn read_words(regs: &[u16], w: ReadWords<'_>) -> Result<(), ErrorKind> {
     let (a, n) = (usize::from(w.address), usize::from(w.count));
     if n == 0 {
@@ -871,8 +896,12 @@ fn read_bits(coils: u8, len: u16, b: ReadBits<'_>) -> Result<(), ErrorKind> {
     }
     b.buf.fill(0);
     for k in 0..n {
-        if coils & (1 << (a + k)) != 0 {
-            b.buf[k / 8] |= 1 << (k % 8);
+        let on = u32::try_from(a + k)
+            .ok()
+            .and_then(|s| coils.checked_shr(s))
+            .is_some_and(|x| x & 1 != 0);
+        if let (true, Some(byte)) = (on, b.buf.get_mut(k / 8)) {
+            *byte |= 1 << (k % 8);
         }
     }
     Ok(())

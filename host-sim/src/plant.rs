@@ -319,6 +319,21 @@ pub struct LogOptions {
     pub time_column: Option<String>,
     /// Default maximum age, ms.
     pub max_age_ms: u64,
+    /// What an empty (or NaN, or non-numeric) value cell means.
+    pub empty_cells: EmptyCells,
+}
+
+/// What an empty value cell of a wide log means.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum EmptyCells {
+    /// A historian export: nothing was stored at that time; the tag is
+    /// interpolated across the cell or held (counted as missing).
+    #[default]
+    Skip,
+    /// A recording of one row per tick (`holdup live`'s `inputs.csv`): the
+    /// poll got no reading at that time, so the tag reads NaN there and
+    /// nothing is held or interpolated across it (counted as missing).
+    NoReading,
 }
 
 /// Initial state, SI.

@@ -4,7 +4,9 @@
 use toml::de::DeValue;
 
 use super::table::{list, section, type_name, Tbl, R};
-use crate::plant::{Conditioning, Interpolation, LogFormat, LogOptions, TagOptions, TimeFormat};
+use crate::plant::{
+    Conditioning, EmptyCells, Interpolation, LogFormat, LogOptions, TagOptions, TimeFormat,
+};
 
 const LOG_KEYS: &[&str] = &["format", "time", "time_column", "max_age"];
 const TAG_KEYS: &[&str] = &[
@@ -30,6 +32,7 @@ pub(super) fn read_log(root: &Tbl<'_>) -> R<LogOptions> {
             time: TimeFormat::Auto,
             time_column: None,
             max_age_ms: DEFAULT_MAX_AGE_MS,
+            empty_cells: EmptyCells::Skip,
         }),
         Some(l) => read_options(&l),
     }
@@ -84,6 +87,7 @@ fn read_options(t: &Tbl<'_>) -> R<LogOptions> {
         time,
         time_column,
         max_age_ms,
+        empty_cells: EmptyCells::Skip,
     })
 }
 

@@ -15,8 +15,8 @@ mod vessel;
 
 use super::*;
 use crate::plant::{
-    BiasMeter, Estimator, Interpolation, LogFormat, LogOptions, OutletKind, ScalarKind, Signal,
-    TimeFormat,
+    BiasMeter, EmptyCells, Estimator, Interpolation, LogFormat, LogOptions, OutletKind, ScalarKind,
+    Signal, TimeFormat,
 };
 use holdup_kernel::units::GAS_CONSTANT;
 use holdup_kernel::{Bottom, Method, Shape};
@@ -337,7 +337,8 @@ fn minimal_config_gets_the_defaults() {
             format: LogFormat::Auto,
             time: TimeFormat::Auto,
             time_column: None,
-            max_age_ms: 600_000
+            max_age_ms: 600_000,
+            empty_cells: EmptyCells::Skip,
         }
     );
 }

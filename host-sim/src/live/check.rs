@@ -9,24 +9,25 @@ use holdup_kernel::modbus::{RegisterMap, WordOrder};
 
 use super::recording::TIME_COLUMN;
 use super::status::f32_at;
-use crate::plant::{Interpolation, LogFormat, LogOptions, Plant, TimeFormat};
+use crate::plant::{EmptyCells, Interpolation, LogFormat, LogOptions, Plant, TimeFormat};
 use crate::replay::{self, Outcome, ReplayError};
 
 /// The plant the recording is replayed with: the live run's plant, reading
-/// the recording's layout, every tag's `max_age` one tick short of the
-/// tick and held, so that a poll without a reading is missing in the
-/// replay too (not interpolated across), as it was for the live sensor.
+/// the recording's layout, an empty cell as no reading at that time
+/// ([`EmptyCells::NoReading`]: the poll got none, so the tag reads NaN
+/// there, as it did for the live sensor) and every tag held (one row a
+/// tick: nothing to interpolate). A whole row missing from the recording
+/// would be a gap as in any log.
 pub fn replay_plant(plant: &Plant) -> Plant {
-    let max_age_ms = u64::from(plant.tick_ms).saturating_sub(1);
     let mut p = plant.clone();
     p.log = LogOptions {
         format: LogFormat::Wide,
         time: TimeFormat::Iso8601,
         time_column: Some(TIME_COLUMN.to_string()),
-        max_age_ms,
+        max_age_ms: plant.log.max_age_ms,
+        empty_cells: EmptyCells::NoReading,
     };
     for t in &mut p.tags {
-        t.max_age_ms = max_age_ms;
         t.interpolation = Interpolation::Hold;
     }
     p

@@ -88,7 +88,7 @@ use std::fs::File;
 use std::io::Read;
 use std::path::Path;
 
-use crate::plant::{Interpolation, LogFormat, LogOptions, TagOptions, TimeFormat};
+use crate::plant::{EmptyCells, Interpolation, LogFormat, LogOptions, TagOptions, TimeFormat};
 use cells::{missing_detail, parse_quality, parse_value, Quality};
 use error::shown;
 pub use error::LogError;
@@ -187,6 +187,7 @@ pub struct LogReader {
     layout: Layout,
     time_col_name: String,
     time_format: TimeFormat,
+    empty_cells: EmptyCells,
     flat_line_ms: i64,
     tags: Vec<TagState>,
     stats: LogStats,
@@ -337,6 +338,7 @@ impl LogReader {
             layout,
             time_col_name,
             time_format: opts.time,
+            empty_cells: opts.empty_cells,
             flat_line_ms: i64::try_from(flat_line_ms).unwrap_or(i64::MAX),
             tags: states,
             stats,
@@ -559,6 +561,9 @@ impl LogReader {
                             .push(line, Some(t), None, || missing_detail(&why, cell));
                         stats::extend_run(&mut ts.open_missing, t, line);
                     }
+                    if self.empty_cells == EmptyCells::NoReading {
+                        self.store_no_reading(k, t, line)?;
+                    }
                 }
             }
         }
@@ -686,6 +691,45 @@ impl LogReader {
 
     /// Store a valid value of tag `k` at `t`: clamp, duplicates, gaps, flat
     /// lines, look-ahead bound.
+    /// [`EmptyCells::NoReading`]: a NaN point at `t`, so that the tag reads
+    /// NaN there and nothing is held or interpolated across it. Not a
+    /// value: no flat-line or gap bookkeeping, and the missing run stays
+    /// open.
+    fn store_no_reading(&mut self, k: usize, t: i64, line: u64) -> Result<(), LogError> {
+        let Some(s) = self.tags.get_mut(k) else {
+            return Ok(());
+        };
+        let point = Point {
+            t,
+            v: f64::NAN,
+            line,
+        };
+        if let Some(last) = s.last_mut().filter(|p| p.t == t) {
+            *last = point;
+            return Ok(());
+        }
+        if self.buffer.buffered >= self.buffer.limit {
+            return Err(LogError::LookAheadOverflow {
+                path: self.path.clone(),
+                line,
+                limit: self.buffer.limit,
+            });
+        }
+        s.queue.push_back(point);
+        self.count_buffered(t);
+        Ok(())
+    }
+
+    /// One more point read ahead, at `t`.
+    fn count_buffered(&mut self, t: i64) {
+        let b = &mut self.buffer;
+        b.buffered += 1;
+        b.peak = b.peak.max(b.buffered);
+        b.first_point.get_or_insert(t);
+        b.last_point = Some(b.last_point.map_or(t, |l| l.max(t)));
+        self.stats.peak_buffered_points = b.peak;
+    }
+
     fn store(&mut self, k: usize, t: i64, raw: f64, line: u64) -> Result<(), LogError> {
         let (Some(s), Some(ts)) = (self.tags.get_mut(k), self.stats.tags.get_mut(k)) else {
             return Ok(());
@@ -744,12 +788,7 @@ impl LogReader {
         ts.points += 1;
         ts.first_time.get_or_insert(t);
         ts.last_time = Some(t);
-        let b = &mut self.buffer;
-        b.buffered += 1;
-        b.peak = b.peak.max(b.buffered);
-        b.first_point.get_or_insert(t);
-        b.last_point = Some(b.last_point.map_or(t, |l| l.max(t)));
-        self.stats.peak_buffered_points = b.peak;
+        self.count_buffered(t);
         Ok(())
     }
 
@@ -780,7 +819,9 @@ fn close_flat(run: &FlatRun, flat_line_ms: i64, ts: &mut TagStats) {
 
 /// The value of one tag at `t`, all points ≤ `t` consumed.
 fn resample(s: &TagState, t: i64) -> TagSample {
-    let Some(p) = s.prev else {
+    // No point yet, or the last one is a recording's "no reading" (the only
+    // NaN a point can hold: values are finite).
+    let Some(p) = s.prev.filter(|p| !p.v.is_nan()) else {
         return TagSample {
             value: f64::NAN,
             state: SampleState::Missing,

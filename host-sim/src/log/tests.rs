@@ -35,6 +35,7 @@ fn opts(format: LogFormat, time: TimeFormat) -> LogOptions {
         time,
         time_column: None,
         max_age_ms: 600_000,
+        empty_cells: EmptyCells::Skip,
     }
 }
 
@@ -217,6 +218,43 @@ fn max_age_held_then_stale() {
     let mut r = reader(&log, &[tag("FI-101", Interpolation::Linear, 20)]);
     check(at(&mut r, T0 + 5 * MIN), &[s(5.0, Interpolated)]);
     assert_eq!(r.stats().tags[0].gaps.total, 0);
+}
+
+#[test]
+fn a_recordings_empty_cell_is_no_reading_at_its_time() {
+    // One row a minute, FI-101 empty at 2 min. A historian export
+    // (`Skip`): interpolated across the cell. A recording of one row a
+    // tick (`NoReading`): missing at 2 min, the next row's value after,
+    // and one missing value but no gap either way.
+    let log = format!(
+        "time,FI-101\n{},4\n{},5\n{},\n{},7\n",
+        iso(T0),
+        iso(T0 + MIN),
+        iso(T0 + 2 * MIN),
+        iso(T0 + 3 * MIN)
+    );
+    use SampleState::*;
+    for (empty, at_2, interpolation) in [
+        (
+            EmptyCells::Skip,
+            s(6.0, Interpolated),
+            Interpolation::Linear,
+        ),
+        (EmptyCells::NoReading, missing(), Interpolation::Hold),
+    ] {
+        let o = LogOptions {
+            empty_cells: empty,
+            ..auto()
+        };
+        let tags = [tag("FI-101", interpolation, 10)];
+        let mut r = reader_with(&log, &o, &tags, 0);
+        check(at(&mut r, T0 + MIN), &[s(5.0, Exact)]);
+        check(at(&mut r, T0 + 2 * MIN), &[at_2]);
+        check(at(&mut r, T0 + 3 * MIN), &[s(7.0, Exact)]);
+        let st = &r.stats().tags[0];
+        assert_eq!(st.missing.total, 1, "{empty:?}");
+        assert_eq!(st.gaps.total, 0, "{empty:?}");
+    }
 }
 
 #[test]

@@ -8,11 +8,14 @@
 //! constants (a feed given as a number, a fixed temperature) are written
 //! into their registers at start; a PLC may overwrite them.
 
+use holdup_kernel::checkpoint::{Checkpoints, RestoreReport, SlotInfo};
 use holdup_kernel::modbus::{
     Dims, Framing, LabOutcome, Link, LinkCounters, LinkSpec, RegisterMap, Response, Served,
 };
+use holdup_kernel::storage::MemStorage;
 use holdup_kernel::units::Millis;
 use holdup_kernel::{Error, Scalar};
+use serde::{de::DeserializeOwned, Serialize};
 
 use crate::plant::{OutletKind, Plant, ScalarKind, Signal};
 use crate::replay::assemble::{self, Sensors, LAB_SLOTS};
@@ -101,6 +104,17 @@ pub fn build<S: Scalar, const N: usize, const D: usize>(
     Ok(link)
 }
 
+/// One checkpoint slot of a host link's checkpoint file: room for the
+/// largest sensor the host builds (8 species, 8 lab slots) several times
+/// over.
+pub const CHECKPOINT_SLOT: u32 = 32 * 1024;
+
+/// The size of a checkpoint file: two slots (the kernel writes the older
+/// one, so a save cut short leaves the newer intact).
+pub const CHECKPOINT_IMAGE: usize = 2 * CHECKPOINT_SLOT as usize;
+
+const CHECKPOINTS: Checkpoints = Checkpoints::new(0, CHECKPOINT_SLOT);
+
 /// What one tick of a [`PlantLink`] did, without the scalar type.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub struct Ticked {
@@ -137,9 +151,19 @@ pub trait PlantLink: Send {
     fn checkpoint_saved(&mut self, ok: bool);
     /// The sensor's tick, ms.
     fn tick_ms(&self) -> u32;
+    /// Save the sensor's whole state into `image` (a checkpoint file's
+    /// [`CHECKPOINT_IMAGE`] bytes, as last written: the older slot is
+    /// overwritten).
+    fn save_state(&self, image: &mut [u8]) -> Result<SlotInfo, Error>;
+    /// Restore the newest valid state of `image` into the sensor (saved by
+    /// a link of the same plant configuration); on error nothing changes.
+    fn restore_state(&mut self, image: &mut [u8]) -> Result<RestoreReport, Error>;
 }
 
-impl<S: Scalar + Send, const N: usize, const D: usize> PlantLink for HostLink<S, N, D> {
+impl<S, const N: usize, const D: usize> PlantLink for HostLink<S, N, D>
+where
+    S: Scalar + Send + Serialize + DeserializeOwned,
+{
     fn handle(&mut self, request: &[u8], framing: Framing, response: &mut Response) -> Served {
         Link::handle(self, request, framing, response)
     }
@@ -178,6 +202,14 @@ impl<S: Scalar + Send, const N: usize, const D: usize> PlantLink for HostLink<S,
     fn tick_ms(&self) -> u32 {
         self.sensor().vessel().model().tick_ms()
     }
+    fn save_state(&self, image: &mut [u8]) -> Result<SlotInfo, Error> {
+        let mut scratch = vec![0u8; CHECKPOINT_SLOT as usize];
+        CHECKPOINTS.save(self.sensor(), &mut MemStorage::new(image), &mut scratch)
+    }
+    fn restore_state(&mut self, image: &mut [u8]) -> Result<RestoreReport, Error> {
+        let mut scratch = vec![0u8; CHECKPOINT_SLOT as usize];
+        CHECKPOINTS.restore_into(self.sensor_mut(), &mut MemStorage::new(image), &mut scratch)
+    }
 }
 
 /// The plant's link at the plant's scalar type and species count (the
@@ -185,10 +217,13 @@ impl<S: Scalar + Send, const N: usize, const D: usize> PlantLink for HostLink<S,
 ///
 /// Errors: see [`build`].
 pub fn build_for(plant: &Plant, spec: LinkSpec) -> Result<Box<dyn PlantLink>, Error> {
-    fn boxed<S: Scalar + Send + 'static, const N: usize, const D: usize>(
+    fn boxed<S, const N: usize, const D: usize>(
         plant: &Plant,
         spec: LinkSpec,
-    ) -> Result<Box<dyn PlantLink>, Error> {
+    ) -> Result<Box<dyn PlantLink>, Error>
+    where
+        S: Scalar + Send + Serialize + DeserializeOwned + 'static,
+    {
         Ok(Box::new(build::<S, N, D>(plant, spec)?))
     }
     macro_rules! by_n {
@@ -229,6 +264,61 @@ mod tests {
             stale_after_ms: 10_000,
             checkpoints: false,
         }
+    }
+
+    #[test]
+    fn a_saved_state_restored_into_a_new_link_goes_on_bit_for_bit() {
+        let plant = demo();
+        let spec = LinkSpec {
+            checkpoints: true,
+            ..spec()
+        };
+        let mut a = build_for(&plant, spec).unwrap();
+        let m = *a.map();
+        let inputs = |l: &mut Box<dyn PlantLink>, seq: u16, level: f64| {
+            for (addr, x) in [
+                (m.inlet_flow_address(0), 0.3 / 3600.0),
+                (m.inlet_flow_address(1), 0.3 / 3600.0),
+                (m.outlet_flow_address(0), 0.6 / 3600.0),
+                (m.temperature_address(), 298.15),
+                (m.level_address(), level),
+            ] {
+                let w = WordOrder::HighFirst.split((x as f32).to_bits());
+                l.write_holding(addr, &w).unwrap();
+            }
+            l.write_holding(0, &[seq]).unwrap();
+        };
+        for n in 0..30u16 {
+            inputs(&mut a, n + 1, 1.5 + 1e-4 * f64::from(n % 7));
+            a.tick(u64::from(n) * 1000);
+        }
+        let mut image = vec![0u8; CHECKPOINT_IMAGE];
+        let first = a.save_state(&mut image).unwrap();
+        let second = a.save_state(&mut image).unwrap();
+        assert_ne!(first.slot, second.slot, "the older slot is overwritten");
+        let mut b = build_for(&plant, spec).unwrap();
+        let report = b.restore_state(&mut image).unwrap();
+        assert_eq!(
+            (report.slot, report.sequence),
+            (second.slot, second.sequence)
+        );
+        for n in 30..40u16 {
+            inputs(&mut a, n + 1, 1.5);
+            inputs(&mut b, n + 1, 1.5);
+            a.tick(u64::from(n) * 1000);
+            b.tick(u64::from(n) * 1000);
+        }
+        // The outputs but the tick count and heartbeat (b ran 10 ticks).
+        let outputs = |l: &dyn PlantLink| l.input_registers()[6..].to_vec();
+        assert_eq!(outputs(a.as_ref()), outputs(b.as_ref()));
+        // Another plant's checkpoint is refused, and nothing changes.
+        let mut other = plant.clone();
+        other.initial.volume *= 1.5;
+        other.tick_ms = 2000;
+        let mut c = build_for(&other, spec).unwrap();
+        let before = c.input_registers().to_vec();
+        assert!(c.restore_state(&mut image).is_err());
+        assert_eq!(c.input_registers(), &before[..]);
     }
 
     #[test]

@@ -5,6 +5,7 @@ use std::process::ExitCode;
 
 use holdup_kernel::modbus::{Clock, LinkSpec, WordOrder};
 use holdup_sim::serve::access::AllowList;
+use holdup_sim::serve::checkpoint::CheckpointFile;
 use holdup_sim::serve::status::StatusLine;
 use holdup_sim::serve::{ServeOptions, Server, SECURITY_NOTE};
 use holdup_sim::text::CAUTION;
@@ -150,6 +151,10 @@ struct ServeArgs {
     /// Connections open at once, at most.
     #[arg(long, default_value_t = 32)]
     max_clients: usize,
+    /// Checkpoint file: the save coil writes the sensor's state there, and
+    /// a restart restores it (without it the coil answers exception 04).
+    #[arg(long)]
+    checkpoint: Option<PathBuf>,
 }
 
 /// `--word-order`.
@@ -220,7 +225,7 @@ fn serve_setup(a: &ServeArgs, tick_ms: u32) -> Result<(LinkSpec, ServeOptions), 
             ClockArg::Sequence => Clock::Sequence,
         },
         stale_after_ms: stale,
-        checkpoints: false,
+        checkpoints: a.checkpoint.is_some(),
     };
     let options = ServeOptions {
         listen: addr("--listen", &a.listen)?,
@@ -248,15 +253,36 @@ fn run_serve(a: &ServeArgs) -> ExitCode {
         Ok(x) => x,
         Err(e) => return fail(e),
     };
-    let link = match link::build_for(&plant, spec) {
+    let mut link = match link::build_for(&plant, spec) {
         Ok(l) => l,
         Err(e) => return fail(format!("{}: {}", a.config.display(), e.message())),
+    };
+    let checkpoint = match &a.checkpoint {
+        None => None,
+        Some(path) => match CheckpointFile::open(path, link.as_mut()) {
+            Ok((file, report)) => {
+                match report {
+                    Some(r) => println!(
+                        "restored from {}: slot {}, sequence {}",
+                        path.display(),
+                        r.slot,
+                        r.sequence
+                    ),
+                    None => println!("checkpoints to {} (no file yet)", path.display()),
+                }
+                Some(file)
+            }
+            Err(e) => return fail(format!("--checkpoint: {e}")),
+        },
     };
     let map = *link.map();
     let server = match Server::start(link, &options) {
         Ok(s) => s,
         Err(e) => return fail(format!("cannot listen: {e}")),
     };
+    if let Some(file) = checkpoint {
+        server.set_checkpoint(file);
+    }
     println!("{CAUTION}\n\n{SECURITY_NOTE}\n");
     println!(
         "{}: unit {}, {} holding, {} input registers, {} coils; writes from {}",

@@ -15,6 +15,7 @@
 //! firewall.
 
 pub mod access;
+pub mod checkpoint;
 pub mod clock;
 pub mod conn;
 pub mod status;
@@ -29,6 +30,7 @@ use std::time::Duration;
 use holdup_kernel::modbus::Clock;
 
 use self::access::AllowList;
+use self::checkpoint::CheckpointFile;
 use crate::link::PlantLink;
 
 /// The security note printed at start.
@@ -60,6 +62,8 @@ pub struct Driven {
     pub link: Box<dyn PlantLink>,
     /// Ticks run since start.
     pub ticks: u64,
+    /// Where the save coil writes (`None`: the coil is refused with 04).
+    pub checkpoint: Option<CheckpointFile>,
 }
 
 impl Driven {
@@ -68,9 +72,18 @@ impl Driven {
         let now = self.ticks.saturating_mul(u64::from(self.link.tick_ms()));
         let t = self.link.tick(now);
         if t.save_checkpoint {
-            // The server keeps no checkpoints (the save coil is refused
-            // with exception 04); a request that still got through failed.
-            self.link.checkpoint_saved(false);
+            let saved = match self.checkpoint.as_mut() {
+                Some(file) => file.save(self.link.as_ref()),
+                None => Err("no checkpoint file".into()),
+            };
+            match &saved {
+                Ok(info) => eprintln!(
+                    "checkpoint saved at tick {}: slot {}, sequence {}, {} bytes",
+                    self.ticks, info.slot, info.sequence, info.bytes
+                ),
+                Err(e) => eprintln!("warning: checkpoint not saved: {e}"),
+            }
+            self.link.checkpoint_saved(saved.is_ok());
         }
         self.ticks += 1;
     }
@@ -142,7 +155,11 @@ impl Server {
         let spec = *link.spec();
         let tick = Duration::from_millis(u64::from(link.tick_ms()));
         let shared = Arc::new(Shared {
-            driven: Mutex::new(Driven { link, ticks: 0 }),
+            driven: Mutex::new(Driven {
+                link,
+                ticks: 0,
+                checkpoint: None,
+            }),
             stop: AtomicBool::new(false),
             stats: Stats::default(),
             unit_id: spec.unit_id,
@@ -190,6 +207,12 @@ impl Server {
     /// The read-only port's address.
     pub fn read_only_addr(&self) -> Option<SocketAddr> {
         self.read_only_addr
+    }
+
+    /// Let the save coil write to `file` (the link must have been built
+    /// with `checkpoints: true`, or the coil is refused before it).
+    pub fn set_checkpoint(&self, file: CheckpointFile) {
+        self.shared.lock().checkpoint = Some(file);
     }
 
     /// What the threads share (for the status line and the bench).

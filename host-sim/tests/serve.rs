@@ -184,6 +184,78 @@ fn sequence_clocked_ticks_agree_with_the_replay_bit_for_bit() {
 }
 
 #[test]
+fn the_save_coil_writes_a_checkpoint_that_a_restart_restores() {
+    use holdup_sim::serve::checkpoint::CheckpointFile;
+    let plant = plant();
+    let dir = std::env::temp_dir().join(format!("holdup-serve-ckpt-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("sensor.ckpt");
+    let _ = std::fs::remove_file(&path);
+    let with_checkpoints = LinkSpec {
+        checkpoints: true,
+        ..spec(Clock::Sequence)
+    };
+    let mut first = link::build_for(&plant, with_checkpoints).unwrap();
+    let (file, restored) = CheckpointFile::open(&path, first.as_mut()).unwrap();
+    assert!(restored.is_none(), "no file yet");
+    let map = *first.map();
+    let options = ServeOptions {
+        listen: "127.0.0.1:0".parse().unwrap(),
+        read_only_listen: None,
+        allow_write: AllowList::loopback(),
+        idle_timeout: Duration::from_secs(5),
+        max_clients: 8,
+    };
+    let server = Server::start(first, &options).unwrap();
+    server.set_checkpoint(file);
+    let mut c = Client::connect(server.local_addr());
+    let (tags, rows) = log_rows();
+    let tag = |t: &str| tags.iter().position(|h| h == t).unwrap();
+    let inputs = [
+        (map.inlet_flow_address(0), tag("FI-1")),
+        (map.inlet_flow_address(1), tag("FI-2")),
+        (map.feed_address(0, 0), tag("AI-1")),
+        (map.outlet_flow_address(0), tag("FI-3")),
+        (map.temperature_address(), tag("TI-1")),
+        (map.level_address(), tag("LI-1")),
+    ];
+    for (n, row) in rows.iter().take(20).enumerate() {
+        for (a, t) in inputs {
+            c.write(a, &f32_words(row[t])).unwrap();
+        }
+        if n == 10 {
+            // Coil 1: save a checkpoint at the next tick.
+            let mut req = c.request();
+            let mut frame = Vec::new();
+            req.generate_set_coil(1, 1u8, &mut frame).unwrap();
+            let answer = c.exchange(&frame);
+            req.parse_ok(&answer).unwrap();
+        }
+        c.write(0, &[n as u16 + 1]).unwrap();
+    }
+    let regs = c.inputs(0, map.input_len()).unwrap();
+    // Link flag 6: the last checkpoint was saved.
+    assert_ne!(regs[9] & (1 << 6), 0, "checkpoint saved flag");
+    server.stop();
+    // A restart restores the state saved at the 11th tick: 11 ticks run.
+    let mut second = link::build_for(&plant, with_checkpoints).unwrap();
+    let (_, restored) = CheckpointFile::open(&path, second.as_mut()).unwrap();
+    assert_eq!(restored.map(|r| r.sequence), Some(1));
+    second.write_holding(0, &[1]).unwrap();
+    second.tick(0);
+    let ticks =
+        WordOrder::HighFirst.join([second.input_registers()[2], second.input_registers()[3]]);
+    assert_eq!(ticks, 12, "11 restored, one more");
+    // Another plant's file is refused, naming it.
+    let mut other = plant.clone();
+    other.tick_ms *= 2;
+    let mut third = link::build_for(&other, with_checkpoints).unwrap();
+    let err = CheckpointFile::open(&path, third.as_mut()).unwrap_err();
+    assert!(err.contains("sensor.ckpt"), "{err}");
+    std::fs::remove_dir_all(&dir).unwrap();
+}
+
+#[test]
 fn illegal_addresses_and_lengths_get_their_exceptions() {
     let plant = plant();
     let (server, map) = start(&plant, Clock::Sequence, AllowList::loopback());

@@ -120,6 +120,21 @@ fn log_rows() -> (Vec<String>, Vec<Vec<f64>>) {
     (header, rows)
 }
 
+/// The log's rows, and which holding register takes which column.
+fn log_and_registers(map: &RegisterMap) -> (Vec<Vec<f64>>, [(u16, usize); 6]) {
+    let (tags, rows) = log_rows();
+    let tag = |t: &str| tags.iter().position(|h| h == t).unwrap();
+    let inputs = [
+        (map.inlet_flow_address(0), tag("FI-1")),
+        (map.inlet_flow_address(1), tag("FI-2")),
+        (map.feed_address(0, 0), tag("AI-1")),
+        (map.outlet_flow_address(0), tag("FI-3")),
+        (map.temperature_address(), tag("TI-1")),
+        (map.level_address(), tag("LI-1")),
+    ];
+    (rows, inputs)
+}
+
 #[test]
 fn sequence_clocked_ticks_agree_with_the_replay_bit_for_bit() {
     let plant = plant();
@@ -142,16 +157,7 @@ fn sequence_clocked_ticks_agree_with_the_replay_bit_for_bit() {
 
     let (server, map) = start(&plant, Clock::Sequence, AllowList::loopback());
     let mut c = Client::connect(server.local_addr());
-    let (tags, log) = log_rows();
-    let tag = |t: &str| tags.iter().position(|h| h == t).unwrap();
-    let inputs = [
-        (map.inlet_flow_address(0), tag("FI-1")),
-        (map.inlet_flow_address(1), tag("FI-2")),
-        (map.feed_address(0, 0), tag("AI-1")),
-        (map.outlet_flow_address(0), tag("FI-3")),
-        (map.temperature_address(), tag("TI-1")),
-        (map.level_address(), tag("LI-1")),
-    ];
+    let (log, inputs) = log_and_registers(&map);
     // Serve tick k runs on log row k-1 and reads as estimates.csv row k.
     for (k, expected) in (1u16..=40).zip(rows.skip(1)) {
         let row = &log[usize::from(k) - 1];
@@ -209,16 +215,7 @@ fn the_save_coil_writes_a_checkpoint_that_a_restart_restores() {
     let server = Server::start(first, &options).unwrap();
     server.set_checkpoint(file);
     let mut c = Client::connect(server.local_addr());
-    let (tags, rows) = log_rows();
-    let tag = |t: &str| tags.iter().position(|h| h == t).unwrap();
-    let inputs = [
-        (map.inlet_flow_address(0), tag("FI-1")),
-        (map.inlet_flow_address(1), tag("FI-2")),
-        (map.feed_address(0, 0), tag("AI-1")),
-        (map.outlet_flow_address(0), tag("FI-3")),
-        (map.temperature_address(), tag("TI-1")),
-        (map.level_address(), tag("LI-1")),
-    ];
+    let (rows, inputs) = log_and_registers(&map);
     for (n, row) in rows.iter().take(20).enumerate() {
         for (a, t) in inputs {
             c.write(a, &f32_words(row[t])).unwrap();

@@ -152,6 +152,26 @@ impl Report {
         defmt::println!("{=str}", s);
     }
 
+    /// The verdict line (`<program>: PASS` or `: FAIL`), then the exit
+    /// through semihosting: status 0 only when `pass`. Not returned from
+    /// under a debugger or QEMU; on a bare board, parks the core.
+    pub fn finish(&mut self, program: &str, pass: bool) -> ! {
+        let verdict = if pass { "PASS" } else { "FAIL" };
+        #[cfg(not(feature = "defmt"))]
+        self.emit(Line::new().str(program).str(": ").str(verdict));
+        #[cfg(feature = "defmt")]
+        defmt::println!("{=str}: {=str}", program, verdict);
+        use cortex_m_semihosting::debug;
+        debug::exit(if pass {
+            debug::EXIT_SUCCESS
+        } else {
+            debug::EXIT_FAILURE
+        });
+        loop {
+            cortex_m::asm::wfi();
+        }
+    }
+
     /// One check's outcome.
     #[inline(never)]
     pub fn check(&mut self, name: &str, points: u32, max_rel: f32, tol: f32, pass: bool) {

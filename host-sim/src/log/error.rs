@@ -32,6 +32,13 @@ pub enum LogError {
         /// What was found instead.
         found: String,
     },
+    /// A temporary file of the on-disk sort cannot be written or read.
+    SortTemp {
+        /// Path of the log.
+        path: String,
+        /// The system's error.
+        source: std::io::Error,
+    },
     /// The file is UTF-16 encoded.
     Utf16 {
         /// Path.
@@ -137,6 +144,12 @@ impl fmt::Display for LogError {
                 f,
                 "{path}: a header row naming the columns is required; {found}"
             ),
+            LogError::SortTemp { path, source } => write!(
+                f,
+                "{path}: the rows are not in time order and sorting them needs temporary \
+                 files, which failed ({source}); set TMPDIR to a folder with room for a \
+                 copy of the log, or export the log in time order"
+            ),
             LogError::Utf16 { path } => write!(
                 f,
                 "{path}: the file is UTF-16 encoded; save it as UTF-8 (or ASCII)"
@@ -214,7 +227,9 @@ impl fmt::Display for LogError {
 impl std::error::Error for LogError {
     fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
         match self {
-            LogError::Open { source, .. } | LogError::Read { source, .. } => Some(source),
+            LogError::Open { source, .. }
+            | LogError::Read { source, .. }
+            | LogError::SortTemp { source, .. } => Some(source),
             _ => None,
         }
     }

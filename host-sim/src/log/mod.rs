@@ -76,9 +76,12 @@ mod cells;
 mod error;
 mod header;
 mod lines;
+pub mod sorted;
 mod stats;
 pub mod time;
 
+#[cfg(test)]
+mod order_tests;
 #[cfg(test)]
 mod tests;
 
@@ -94,7 +97,11 @@ use error::shown;
 pub use error::LogError;
 use header::Layout;
 use lines::{is_blank, Fields, Line, LineReader};
-pub use stats::{Fault, FaultList, LogStats, StateTicks, TagStats, Window, WindowList, KEEP_FIRST};
+use sorted::{Entry, Merged, Sorter, UNTIMED};
+pub use stats::{
+    Fault, FaultList, LogStats, Order, OrderKind, StateTicks, TagStats, Window, WindowList,
+    KEEP_FIRST,
+};
 use time::{looks_numeric, parse_epoch, parse_iso, TimeError};
 
 /// Default flat-line age, ms (30 min).
@@ -179,10 +186,46 @@ struct Buffer {
     last_point: Option<i64>,
 }
 
+/// Where the reader's lines come from: the file itself, or the file's
+/// lines sorted by time ([`sorted`]), numbered as in the file.
+enum Lines {
+    File(LineReader),
+    Sorted(Merged),
+}
+
+impl Lines {
+    fn next_line(&mut self) -> std::io::Result<Line> {
+        match self {
+            Lines::File(r) => r.next_line(),
+            Lines::Sorted(m) => m.next_line(),
+        }
+    }
+
+    fn line(&self) -> &[u8] {
+        match self {
+            Lines::File(r) => r.line(),
+            Lines::Sorted(m) => m.line(),
+        }
+    }
+}
+
+/// What [`LogReader::scan_row`] found on one line.
+enum Scanned {
+    End,
+    /// A line with its number and time ([`UNTIMED`] when it has none: blank,
+    /// malformed, too long, or an unreadable timestamp); `too_long` lines
+    /// have no text.
+    Line {
+        line: u64,
+        t: i64,
+        too_long: bool,
+    },
+}
+
 /// Streaming reader and resampler of one historian log.
 pub struct LogReader {
     path: String,
-    lines: LineReader,
+    lines: Lines,
     fields: Fields,
     layout: Layout,
     time_col_name: String,
@@ -231,12 +274,130 @@ impl LogReader {
         tags: &[TagOptions],
         flat_line_ms: u64,
     ) -> Result<Self, LogError> {
+        Self::open_sorting(path, opts, tags, flat_line_ms, sorted::RUN_BUDGET)
+    }
+
+    /// As [`LogReader::open_with`], sorting with runs of at most `budget`
+    /// bytes when the file is not in time order.
+    fn open_sorting(
+        path: &Path,
+        opts: &LogOptions,
+        tags: &[TagOptions],
+        flat_line_ms: u64,
+        budget: usize,
+    ) -> Result<Self, LogError> {
         let name = path.display().to_string();
-        let file = File::open(path).map_err(|source| LogError::Open {
+        let open = || {
+            File::open(path).map_err(|source| LogError::Open {
+                path: name.clone(),
+                source,
+            })
+        };
+        // First pass: the times only, to learn the order.
+        let mut scan = Self::from_reader(Box::new(open()?), &name, opts, tags, flat_line_ms)?;
+        let order = scan.scan_order()?;
+        let mut opts = opts.clone();
+        opts.time = scan.time_format;
+        if order.kind == OrderKind::InOrder {
+            let mut r = Self::from_reader(Box::new(open()?), &name, &opts, tags, flat_line_ms)?;
+            r.stats.order = order;
+            return Ok(r);
+        }
+        // Not in time order: cut into sorted runs, then read the merge.
+        let mut feed = Self::from_reader(Box::new(open()?), &name, &opts, tags, flat_line_ms)?;
+        let temp_err = |source| LogError::SortTemp {
             path: name.clone(),
             source,
+        };
+        let mut sorter = Sorter::new(budget);
+        while let Scanned::Line { line, t, too_long } = feed.scan_row()? {
+            let text = (!too_long).then(|| feed.lines.line());
+            sorter.push(Entry { t, line, text }).map_err(temp_err)?;
+        }
+        let (merged, figures) = sorter.finish().map_err(temp_err)?;
+        let mut r = Self::from_reader(Box::new(open()?), &name, &opts, tags, flat_line_ms)?;
+        r.lines = Lines::Sorted(merged);
+        r.stats.order = Order {
+            sort: Some(figures),
+            ..order
+        };
+        Ok(r)
+    }
+
+    /// Read every remaining line's time (nothing is stored or counted) and
+    /// tell the order of the rows.
+    fn scan_order(&mut self) -> Result<Order, LogError> {
+        let mut order = Order::default();
+        let mut last: Option<i64> = None;
+        let mut latest = i64::MIN;
+        while let Scanned::Line { line, t, .. } = self.scan_row()? {
+            if t == UNTIMED {
+                continue;
+            }
+            if let Some(prev) = last {
+                if t > prev {
+                    order.steps_forward += 1;
+                } else if t < prev {
+                    order.steps_back += 1;
+                }
+            }
+            if t < latest {
+                order.out_of_order_rows += 1;
+                order.first_out_of_order_line.get_or_insert(line);
+            }
+            latest = latest.max(t);
+            last = Some(t);
+        }
+        order.kind = match (order.steps_back, order.steps_forward) {
+            (0, _) => OrderKind::InOrder,
+            (_, 0) => OrderKind::NewestFirst,
+            _ if matches!(self.layout, Layout::Long { .. }) => OrderKind::Grouped,
+            _ => OrderKind::Shuffled,
+        };
+        Ok(order)
+    }
+
+    /// Read one line and its time without storing anything: for the order
+    /// pass and for cutting sorted runs. Decides the time notation, as
+    /// [`Self::row_time`] does.
+    fn scan_row(&mut self) -> Result<Scanned, LogError> {
+        let next = self.lines.next_line().map_err(|source| LogError::Read {
+            path: self.path.clone(),
+            line: self.line,
+            source,
         })?;
-        Self::from_reader(Box::new(file), &name, opts, tags, flat_line_ms)
+        let line = match next {
+            Line::End => return Ok(Scanned::End),
+            Line::TooLong(n) => {
+                self.line = n;
+                return Ok(Scanned::Line {
+                    line: n,
+                    t: UNTIMED,
+                    too_long: true,
+                });
+            }
+            Line::Text(n) => n,
+        };
+        self.line = line;
+        let untimed = Scanned::Line {
+            line,
+            t: UNTIMED,
+            too_long: false,
+        };
+        if is_blank(self.lines.line()) || self.fields.split(self.lines.line()).is_err() {
+            return Ok(untimed);
+        }
+        let time_col = match &self.layout {
+            Layout::Wide { time_col, .. } | Layout::Long { time_col, .. } => *time_col,
+        };
+        Ok(match self.parse_time(time_col) {
+            Ok(t) => Scanned::Line {
+                line,
+                t,
+                too_long: false,
+            },
+            Err(_) => untimed,
+        })
     }
 
     /// Read a log from any reader (`name` is used in messages and stats).
@@ -322,6 +483,7 @@ impl LogReader {
             malformed: FaultList::default(),
             duplicate_rows: FaultList::default(),
             peak_buffered_points: 0,
+            order: Order::default(),
             tags: tags
                 .iter()
                 .map(|t| TagStats {
@@ -333,7 +495,7 @@ impl LogReader {
         };
         Ok(Self {
             path,
-            lines,
+            lines: Lines::File(lines),
             fields,
             layout,
             time_col_name,
@@ -486,7 +648,7 @@ impl LogReader {
             }
             Line::TooLong(n) => {
                 self.line = n;
-                self.stats.lines = n;
+                self.stats.lines = self.stats.lines.max(n);
                 self.stats.rows += 1;
                 self.stats
                     .malformed
@@ -496,7 +658,7 @@ impl LogReader {
             Line::Text(n) => n,
         };
         self.line = line;
-        self.stats.lines = line;
+        self.stats.lines = self.stats.lines.max(line);
         if is_blank(self.lines.line()) {
             self.stats.blank_lines += 1;
             return Ok(());
@@ -635,9 +797,9 @@ impl LogReader {
         }
     }
 
-    /// The row's time, or `None` when rejected (counted). Also decides the
+    /// The time in column `time_col` of the line just split, deciding the
     /// time notation on the first readable timestamp.
-    fn row_time(&mut self, line: u64, time_col: usize) -> Result<Option<i64>, LogError> {
+    fn parse_time(&mut self, time_col: usize) -> Result<i64, TimeError> {
         let text = self.fields.get(time_col);
         let parsed = match self.time_format {
             TimeFormat::Epoch => parse_epoch(text),
@@ -656,6 +818,14 @@ impl LogReader {
             }
         };
         self.stats.time = self.time_format;
+        parsed
+    }
+
+    /// The row's time, or `None` when rejected (counted). Also decides the
+    /// time notation on the first readable timestamp.
+    fn row_time(&mut self, line: u64, time_col: usize) -> Result<Option<i64>, LogError> {
+        let parsed = self.parse_time(time_col);
+        let text = self.fields.get(time_col);
         let t = match parsed {
             Ok(t) => t,
             Err(TimeError::NoOffset) => {

@@ -175,6 +175,71 @@ pub(crate) fn close_run(open: &mut Option<Window>, list: &mut WindowList) {
     }
 }
 
+/// How the file's rows were ordered in time.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum OrderKind {
+    /// Every row at or after the one before it (or not read by path).
+    #[default]
+    InOrder,
+    /// Every row at or before the one before it.
+    NewestFirst,
+    /// A long log whose time starts over, for example one tag after another.
+    Grouped,
+    /// Rows out of order in places.
+    Shuffled,
+}
+
+/// The order pass over a log read from a file.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize)]
+pub struct Order {
+    /// What the order pass found.
+    pub kind: OrderKind,
+    /// Timed rows later than the row before them.
+    pub steps_forward: u64,
+    /// Timed rows earlier than the row before them.
+    pub steps_back: u64,
+    /// Rows earlier than some row before them.
+    pub out_of_order_rows: u64,
+    /// The first of those rows.
+    pub first_out_of_order_line: Option<u64>,
+    /// The on-disk sort, when the log was not in time order.
+    pub sort: Option<super::sorted::SortFigures>,
+}
+
+impl Order {
+    /// One line for people, or `None` for a log in time order.
+    pub fn describe(&self) -> Option<String> {
+        let how = match self.kind {
+            OrderKind::InOrder => return None,
+            OrderKind::NewestFirst => "newest first".to_string(),
+            OrderKind::Grouped => format!(
+                "grouped (time starts over {} {}, as in a log exported one tag after another)",
+                self.steps_back,
+                plural(self.steps_back, "time", "times")
+            ),
+            OrderKind::Shuffled => format!(
+                "out of time order in places ({} {} earlier than a row before {}, first at line {})",
+                self.out_of_order_rows,
+                plural(self.out_of_order_rows, "row", "rows"),
+                plural(self.out_of_order_rows, "it", "them"),
+                self.first_out_of_order_line.unwrap_or(0)
+            ),
+        };
+        let sort = self.sort.map_or(String::new(), |s| {
+            format!(
+                " ({} sorted {}, {:.1} MB of temporary files)",
+                s.runs,
+                plural(s.runs, "run", "runs"),
+                s.temp_bytes as f64 / 1e6
+            )
+        });
+        Some(format!(
+            "the rows are {how}: they were sorted by time on disk before the replay{sort}"
+        ))
+    }
+}
+
 /// Everything the reader counted.
 #[derive(Clone, Debug, PartialEq, serde::Serialize)]
 pub struct LogStats {
@@ -207,6 +272,9 @@ pub struct LogStats {
     pub duplicate_rows: FaultList,
     /// Most stored points buffered at once (look-ahead), all tags.
     pub peak_buffered_points: usize,
+    /// The order of the rows in the file, and the sort when it was not
+    /// time order.
+    pub order: Order,
     /// Per tag, in the order asked for.
     pub tags: Vec<TagStats>,
 }
@@ -271,6 +339,7 @@ impl LogStats {
             self.rows,
             self.rows_rejected()
         ));
+        out.extend(self.order.describe());
         let rows = [
             (&self.bad_time, "rejected: timestamp cannot be parsed"),
             (

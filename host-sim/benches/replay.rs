@@ -71,7 +71,7 @@ const HOLDUP: &str = env!("CARGO_BIN_EXE_holdup");
 const PY_SCRIPT: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/benches/ode_replay.py");
 
 /// Bump when the generated log changes, so stale cached logs are rewritten.
-const GENERATOR_VERSION: u32 = 1;
+const GENERATOR_VERSION: u32 = 2;
 
 /// First row: 2026-06-01T00:00:00Z, epoch seconds.
 const START_EPOCH_S: i64 = 1_780_272_000;
@@ -94,21 +94,78 @@ const GRADE_S: i64 = 6 * 3600;
 /// Report interval asked of `holdup replay`, s.
 const EVERY_S: i64 = 3600;
 
+/// How the rows of a benchmark log are laid out.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Layout {
+    /// Wide, one row a second, oldest first.
+    Wide,
+    /// Wide, newest first (the reader sorts it on disk).
+    WideNewestFirst,
+    /// Long (`time,tag,value`), one tag after another, each oldest first
+    /// (the reader sorts it on disk).
+    LongByTag,
+}
+
 /// A benchmark log.
 #[derive(Clone, Copy)]
 struct Case {
     name: &'static str,
-    rows: u64,
+    /// Seconds of plant time (one sample of every tag a second).
+    seconds: u64,
+    layout: Layout,
+}
+
+impl Case {
+    /// Rows of the file (long: one per tag and second).
+    fn rows(self) -> u64 {
+        match self.layout {
+            Layout::LongByTag => self.seconds * TAGS.len() as u64,
+            _ => self.seconds,
+        }
+    }
 }
 
 const WEEK: Case = Case {
     name: "week",
-    rows: 7 * 86_400,
+    seconds: 7 * 86_400,
+    layout: Layout::Wide,
 };
 const MONTH: Case = Case {
     name: "month",
-    rows: 30 * 86_400,
+    seconds: 30 * 86_400,
+    layout: Layout::Wide,
 };
+const WEEK_NEWEST_FIRST: Case = Case {
+    name: "week-newest-first",
+    seconds: 7 * 86_400,
+    layout: Layout::WideNewestFirst,
+};
+const MONTH_NEWEST_FIRST: Case = Case {
+    name: "month-newest-first",
+    seconds: 30 * 86_400,
+    layout: Layout::WideNewestFirst,
+};
+const WEEK_LONG_BY_TAG: Case = Case {
+    name: "week-long-by-tag",
+    seconds: 7 * 86_400,
+    layout: Layout::LongByTag,
+};
+const MONTH_LONG_BY_TAG: Case = Case {
+    name: "month-long-by-tag",
+    seconds: 30 * 86_400,
+    layout: Layout::LongByTag,
+};
+const ALL: [Case; 6] = [
+    WEEK,
+    MONTH,
+    WEEK_NEWEST_FIRST,
+    MONTH_NEWEST_FIRST,
+    WEEK_LONG_BY_TAG,
+    MONTH_LONG_BY_TAG,
+];
+
+/// The log's tags, in column order.
+const TAGS: [&str; 5] = ["FI-101", "FI-201", "AI-101", "TI-301", "LI-301"];
 
 /// Feed concentration in force from second `t` (since the first row).
 fn feed_at(t_s: i64) -> f64 {
@@ -218,31 +275,69 @@ fn check_plant() -> Result<(), String> {
     }
 }
 
-/// Write `rows` one-second rows of the log to `path`; returns its size.
-fn write_log(path: &Path, rows: u64) -> io::Result<u64> {
+/// The five values of second `t` (in [`TAGS`] order), as logged.
+fn values(t: i64, rng: &mut Rng) -> [String; 5] {
+    // Tank temperature: 18 °C ± 3 °C over the day, 0.05 °C sensor noise.
+    let day = std::f64::consts::TAU * (t % 86_400) as f64 / 86_400.0;
+    let temp = 18.0 + 3.0 * day.sin() + 0.05 * rng.normal();
+    [
+        format!("{FLOW_M3_H:.3}"),
+        format!("{FLOW_M3_H:.3}"),
+        format!("{:.1}", feed_at(t)),
+        format!("{temp:.2}"),
+        format!("{:.4}", level_m()),
+    ]
+}
+
+/// Write the case's log to `path`; returns its size. The same values in
+/// every layout (one noise sequence, drawn in time order).
+fn write_log(path: &Path, case: Case) -> io::Result<u64> {
     let part = path.with_extension("csv.part");
     let mut w = BufWriter::with_capacity(1 << 20, File::create(&part)?);
-    w.write_all(b"time,FI-101,FI-201,AI-101,TI-301,LI-301\n")?;
     let mut rng = Rng(0x7a4b_11fe_0c0f_fee5);
-    let level = level_m();
-    let mut line = String::with_capacity(64);
-    for t in 0..rows as i64 {
-        // Tank temperature: 18 °C ± 3 °C over the day, 0.05 °C sensor noise.
-        let day = std::f64::consts::TAU * (t % 86_400) as f64 / 86_400.0;
-        let temp = 18.0 + 3.0 * day.sin() + 0.05 * rng.normal();
-        line.clear();
-        let _ = writeln!(
-            line,
-            "{},{FLOW_M3_H:.3},{FLOW_M3_H:.3},{:.1},{temp:.2},{level:.4}",
-            START_EPOCH_S + t,
-            feed_at(t),
-        );
-        w.write_all(line.as_bytes())?;
+    let seconds = case.seconds as i64;
+    match case.layout {
+        Layout::Wide | Layout::WideNewestFirst => {
+            writeln!(w, "time,{}", TAGS.join(","))?;
+            let row = |t: i64, rng: &mut Rng| {
+                format!("{},{}\n", START_EPOCH_S + t, values(t, rng).join(","))
+            };
+            if case.layout == Layout::Wide {
+                for t in 0..seconds {
+                    w.write_all(row(t, &mut rng).as_bytes())?;
+                }
+            } else {
+                let rows: Vec<String> = (0..seconds).map(|t| row(t, &mut rng)).collect();
+                for r in rows.iter().rev() {
+                    w.write_all(r.as_bytes())?;
+                }
+            }
+        }
+        Layout::LongByTag => {
+            writeln!(w, "time,tag,value")?;
+            let all: Vec<[String; 5]> = (0..seconds).map(|t| values(t, &mut rng)).collect();
+            for (k, tag) in TAGS.iter().enumerate() {
+                for (t, v) in all.iter().enumerate() {
+                    writeln!(w, "{},{tag},{}", START_EPOCH_S + t as i64, v[k])?;
+                }
+            }
+        }
     }
     w.flush()?;
     drop(w);
     fs::rename(&part, path)?;
     Ok(fs::metadata(path)?.len())
+}
+
+/// The plant file for the case: the bench plant, reading a long log for
+/// [`Layout::LongByTag`].
+fn plant_toml(case: Case) -> String {
+    match case.layout {
+        Layout::LongByTag => PLANT_TOML
+            .replace("format = \"wide\"", "format = \"long\"")
+            .replace("time_column = \"time\"\n", ""),
+        _ => PLANT_TOML.to_string(),
+    }
 }
 
 /// The case's folder with `plant.toml` and `log.csv`, generating the log
@@ -251,19 +346,19 @@ fn prepare(root: &Path, case: Case) -> io::Result<(PathBuf, PathBuf, u64, bool)>
     let dir = root.join(case.name);
     fs::create_dir_all(&dir)?;
     let config = dir.join("plant.toml");
-    fs::write(&config, PLANT_TOML)?;
+    fs::write(&config, plant_toml(case))?;
     let log = dir.join("log.csv");
     let meta = dir.join("log.csv.meta");
     let actual = fs::metadata(&log).map(|m| m.len()).ok();
     let recorded = fs::read_to_string(&meta).ok();
     if let (Some(len), Some(rec)) = (actual, recorded) {
-        if rec.trim() == meta_line(case.rows, len) {
+        if rec.trim() == meta_line(case.rows(), len) {
             return Ok((config, log, len, true));
         }
     }
     let _ = fs::remove_file(&meta);
-    let len = write_log(&log, case.rows)?;
-    fs::write(&meta, meta_line(case.rows, len) + "\n")?;
+    let len = write_log(&log, case)?;
+    fs::write(&meta, meta_line(case.rows(), len) + "\n")?;
     Ok((config, log, len, false))
 }
 
@@ -420,7 +515,7 @@ fn run_holdup(root: &Path, case: Case, runs: u32) -> Result<(Row, PathBuf), Stri
         "{}: log {} ({} rows, {:.1} MiB) {}",
         case.name,
         log.display(),
-        case.rows,
+        case.rows(),
         bytes as f64 / (1 << 20) as f64,
         if reused {
             "reused".to_string()
@@ -445,7 +540,7 @@ fn run_holdup(root: &Path, case: Case, runs: u32) -> Result<(Row, PathBuf), Stri
         cmd
     })?;
     let (err, n) = check_estimates(&out.join("estimates.csv"))?;
-    let expect = case.rows.div_ceil(EVERY_S as u64) as usize;
+    let expect = case.seconds.div_ceil(EVERY_S as u64) as usize;
     if n < expect {
         return Err(format!(
             "{}: estimates.csv has {n} hourly rows, expected at least {expect}",
@@ -455,7 +550,7 @@ fn run_holdup(root: &Path, case: Case, runs: u32) -> Result<(Row, PathBuf), Stri
     Ok((
         Row {
             label: format!("{} (holdup, f32)", case.name),
-            rows: case.rows,
+            rows: case.rows(),
             wall_s: best.wall.as_secs_f64(),
             peak_rss_mib: best.peak_rss_mib,
             max_rel_error: err,
@@ -526,9 +621,10 @@ fn main() {
     let mut args = std::env::args().skip(1);
     while let Some(a) = args.next() {
         match a.as_str() {
-            "week" => cases.push(WEEK),
-            "month" => cases.push(MONTH),
             "--no-python" => with_python = false,
+            name if ALL.iter().any(|c| c.name == name) => {
+                cases.extend(ALL.iter().filter(|c| c.name == name).copied())
+            }
             "--runs" => {
                 runs = args
                     .next()
@@ -543,7 +639,7 @@ fn main() {
         }
     }
     if cases.is_empty() {
-        cases = vec![WEEK, MONTH];
+        cases = ALL.to_vec();
     }
     // <target>/tmp → <target>/holdup-bench (override: HOLDUP_BENCH_DIR).
     let root = std::env::var_os("HOLDUP_BENCH_DIR")
@@ -590,7 +686,7 @@ fn main() {
                 Some(l) => Ok(l),
                 None => prepare(&root, WEEK).map(|p| p.1).map_err(|e| e.to_string()),
             };
-            match log.and_then(|l| run_python(&root, &l, WEEK.rows, runs)) {
+            match log.and_then(|l| run_python(&root, &l, WEEK.rows(), runs)) {
                 Ok((row, note)) => {
                     rows.push(row);
                     notes.push(note);

@@ -23,6 +23,7 @@
 //! `plc` table of `[tags."…"]`, for a live run).
 
 mod estimator;
+mod flow;
 mod initial;
 mod log;
 mod measured;

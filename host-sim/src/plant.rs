@@ -30,7 +30,21 @@ pub enum Signal {
         offset: f64,
         /// Unit as written in the config (for reports).
         unit: String,
+        /// A mass flow's density from the log: the SI value is then
+        /// `(raw · scale + offset) / density` (m³/s from kg/s).
+        density: Option<DensityTag>,
     },
+}
+
+/// A density read from the log, dividing a mass flow into a volumetric one.
+#[derive(Clone, Debug, PartialEq)]
+pub struct DensityTag {
+    /// Tag of the density.
+    pub tag: String,
+    /// Multiplier to kg/m³.
+    pub scale: f64,
+    /// Unit as written in the config.
+    pub unit: String,
 }
 
 impl Signal {
@@ -42,11 +56,45 @@ impl Signal {
         }
     }
 
-    /// Convert a raw log value of this signal to SI (constants ignore `raw`).
+    /// The density tag of a mass flow, if it has one.
+    pub fn density(&self) -> Option<&DensityTag> {
+        match self {
+            Signal::Tag { density, .. } => density.as_ref(),
+            Signal::Constant(_) => None,
+        }
+    }
+
+    /// Convert a raw log value of this signal to SI (constants ignore `raw`;
+    /// a mass flow with a density tag needs [`Signal::to_si_with`]).
     pub fn to_si(&self, raw: f64) -> f64 {
+        self.to_si_with(raw, f64::NAN)
+    }
+
+    /// As [`Signal::to_si`], with the raw density of a mass flow whose
+    /// density comes from the log: a density that is not a positive finite
+    /// number gives NaN (no reading).
+    pub fn to_si_with(&self, raw: f64, raw_density: f64) -> f64 {
         match self {
             Signal::Constant(v) => *v,
-            Signal::Tag { scale, offset, .. } => raw * scale + offset,
+            Signal::Tag {
+                scale,
+                offset,
+                density: None,
+                ..
+            } => raw * scale + offset,
+            Signal::Tag {
+                scale,
+                offset,
+                density: Some(d),
+                ..
+            } => {
+                let rho = raw_density * d.scale;
+                if rho.is_finite() && rho > 0.0 {
+                    (raw * scale + offset) / rho
+                } else {
+                    f64::NAN
+                }
+            }
         }
     }
 }

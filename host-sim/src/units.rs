@@ -46,6 +46,11 @@ pub enum Kind {
     MolarEnergy,
     /// Duration, SI s (see also [`parse_duration_ms`]).
     Duration,
+    /// Mass flow, SI kg/s (a flow signal with a density, see
+    /// `docs/config.md`).
+    MassFlow,
+    /// Density, SI kg/m³.
+    Density,
 }
 
 impl Kind {
@@ -61,6 +66,8 @@ impl Kind {
             Kind::MolarMass => "molar mass",
             Kind::MolarEnergy => "energy per mole",
             Kind::Duration => "duration",
+            Kind::MassFlow => "mass flow",
+            Kind::Density => "density",
         }
     }
 
@@ -76,6 +83,8 @@ impl Kind {
             Kind::MolarMass => "kg/mol",
             Kind::MolarEnergy => "J/mol",
             Kind::Duration => "s",
+            Kind::MassFlow => "kg/s",
+            Kind::Density => "kg/m3",
         }
     }
 }
@@ -225,6 +234,10 @@ const MINUTE: f64 = 60.0;
 const HOUR: f64 = 3600.0;
 /// NIST SP 811 B.9: 0 °C = 273.15 K (exact).
 const ZERO_CELSIUS: f64 = 273.15;
+/// NIST SP 811 B.8: avoirdupois pound = 0.45359237 kg (exact).
+const POUND: f64 = 0.453_592_37;
+/// Tonne = 10³ kg (SI Brochure, non-SI unit accepted for use with the SI).
+const TONNE: f64 = 1e3;
 /// NIST SP 811 B.8: thermochemical calorie = 4.184 J, kcal = 4184 J (exact).
 const KILOCALORIE: f64 = 4184.0;
 
@@ -279,6 +292,27 @@ const FLOW_UNITS: &[&str] = &[
     "ft3/min",
     "ft3/h",
 ];
+
+const MASS_FLOW: &[Entry] = &[
+    ("kg/s", 1.0, 0.0),
+    ("kg/min", 1.0 / MINUTE, 0.0),
+    ("kg/h", 1.0 / HOUR, 0.0),
+    ("t/h", TONNE / HOUR, 0.0),
+    ("t/d", TONNE / (24.0 * HOUR), 0.0),
+    ("lb/min", POUND / MINUTE, 0.0),
+    ("lb/h", POUND / HOUR, 0.0),
+];
+const MASS_FLOW_UNITS: &[&str] = &["kg/s", "kg/min", "kg/h", "t/h", "t/d", "lb/min", "lb/h"];
+
+const DENSITY: &[Entry] = &[
+    ("kg/m3", 1.0, 0.0),
+    ("kg/L", 1.0 / LITRE, 0.0),
+    ("g/cm3", 1e3, 0.0),
+    ("g/mL", 1e3, 0.0),
+    ("lb/ft3", POUND / CUBIC_FOOT, 0.0),
+    ("lb/US gal", POUND / US_GALLON, 0.0),
+];
+const DENSITY_UNITS: &[&str] = &["kg/m3", "kg/L", "g/cm3", "g/mL", "lb/ft3", "lb/US gal"];
 
 /// K = (°F − 32)·5/9 + 273.15 = °F·5/9 + (273.15 − 160/9).
 const FAHRENHEIT_SCALE: f64 = 5.0 / 9.0;
@@ -377,6 +411,8 @@ fn table(kind: Kind) -> &'static [Entry] {
         Kind::MolarMass => MOLAR_MASS,
         Kind::MolarEnergy => MOLAR_ENERGY,
         Kind::Duration => DURATION,
+        Kind::MassFlow => MASS_FLOW,
+        Kind::Density => DENSITY,
     }
 }
 
@@ -400,6 +436,8 @@ pub fn valid_units(kind: Kind) -> &'static [&'static str] {
         Kind::MolarMass => MOLAR_MASS_UNITS,
         Kind::MolarEnergy => MOLAR_ENERGY_UNITS,
         Kind::Duration => DURATION_UNITS,
+        Kind::MassFlow => MASS_FLOW_UNITS,
+        Kind::Density => DENSITY_UNITS,
     }
 }
 
@@ -626,6 +664,43 @@ mod tests {
     }
 
     #[test]
+    fn mass_flows_and_densities_by_hand() {
+        // 3.6 t/h = 3600 kg / 3600 s = 1 kg/s; 24 t/d = 1 t/h.
+        assert!(close(si(Kind::MassFlow, "t/h", 3.6), 1.0, 1e-15));
+        assert!(close(si(Kind::MassFlow, "t/d", 24.0), 1.0 / 3.6, 1e-15));
+        assert!(close(si(Kind::MassFlow, "kg/h", 7200.0), 2.0, 1e-15));
+        assert!(close(si(Kind::MassFlow, "kg/min", 30.0), 0.5, 1e-15));
+        // 3600 lb/h = 1 lb/s = 0.45359237 kg/s (NIST SP 811 B.8).
+        assert!(close(
+            si(Kind::MassFlow, "lb/h", 3600.0),
+            0.453_592_37,
+            1e-15
+        ));
+        assert!(close(
+            si(Kind::MassFlow, "lb/min", 60.0),
+            0.453_592_37,
+            1e-15
+        ));
+        // 1 g/cm³ = 1 g/mL = 1 kg/L = 1000 kg/m³.
+        assert!(close(si(Kind::Density, "g/cm3", 1.0), 1000.0, 1e-15));
+        assert!(close(si(Kind::Density, "g/mL", 0.8), 800.0, 1e-15));
+        assert!(close(si(Kind::Density, "kg/L", 1.05), 1050.0, 1e-15));
+        // 1 lb/ft³ = 0.45359237 / 0.028316846592 = 16.018463373960138 kg/m³
+        // (quotient of the two exact factors, worked out by hand and with
+        // Python's fractions module); 1 lb/US gal = 119.82642731689663 kg/m³.
+        assert!(close(
+            si(Kind::Density, "lb/ft3", 1.0),
+            16.018_463_373_960_14,
+            1e-14
+        ));
+        assert!(close(
+            si(Kind::Density, "lb/US gal", 1.0),
+            119.826_427_316_896_6,
+            1e-14
+        ));
+    }
+
+    #[test]
     fn temperatures_by_hand() {
         assert!(close(si(Kind::Temperature, "degC", 25.0), 298.15, 1e-15));
         assert!(close(si(Kind::Temperature, "°C", 0.0), 273.15, 1e-15));
@@ -789,6 +864,8 @@ mod tests {
             Kind::MolarMass,
             Kind::MolarEnergy,
             Kind::Duration,
+            Kind::MassFlow,
+            Kind::Density,
         ];
         for kind in kinds {
             assert!(!valid_units(kind).is_empty());

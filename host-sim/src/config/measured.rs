@@ -2,10 +2,10 @@
 //! the online analysers `[[analyser]]`.
 
 use super::quantity::{Conv, TagMode};
-use super::source::{source_of, Source, TagUses};
+use super::source::{source_of, Source, TagRef, TagUses};
 use super::table::{array_section, list, required_section, section, Tbl, R};
 use crate::plant::{limits, Analyser, Signal, Species};
-use crate::units::Kind;
+use crate::units::{Kind, ToSi};
 
 const ANALYSER_KEYS: &[&str] = &["species", "reading", "sigma", "cycle"];
 
@@ -23,15 +23,60 @@ pub(super) fn read_temperature(root: &Tbl<'_>, tags: &mut TagUses) -> R<Signal> 
     Ok(tags.signal(temperature, false))
 }
 
-/// `[level]` (optional): a tag only.
+/// `[level]` (optional): a tag only, in a length unit or in `%` of the
+/// transmitter's span (`lower` and `upper`: the levels at 0 % and 100 %,
+/// from the same reference as the vessel's heights).
 pub(super) fn read_level(root: &Tbl<'_>, tags: &mut TagUses) -> R<Option<Signal>> {
-    Ok(match section(root, "level")? {
-        None => None,
-        Some(l) => Some(tags.signal(
+    let Some(l) = section(root, "level")? else {
+        return Ok(None);
+    };
+    if l.string("unit")?.map(|(u, _)| u) != Some("%") {
+        if let Some(key) = ["lower", "upper"].into_iter().find(|k| l.get(k).is_some()) {
+            return Err(l.err(
+                l.key_at(key),
+                key,
+                "only used with unit = \"%\" (the levels at 0 % and 100 % of the span)",
+            ));
+        }
+        return Ok(Some(tags.signal(
             source_of(&l, Conv::Kind(Kind::Length), TagMode::Only)?,
             false,
-        )),
-    })
+        )));
+    }
+    l.check_keys(&["tag", "unit", "lower", "upper"])?;
+    let length = Conv::Kind(Kind::Length);
+    let lower = l.req_quantity(
+        "lower",
+        length,
+        "the level at 0 % of the span, e.g. { value = 0.15, unit = \"m\" }",
+    )?;
+    let upper = l.req_quantity(
+        "upper",
+        length,
+        "the level at 100 % of the span, e.g. { value = 3.2, unit = \"m\" }",
+    )?;
+    if upper.si <= lower.si {
+        return Err(upper.fail(l.ctx, &format!("must be above lower ({})", lower.shown())));
+    }
+    let (tag, at) = l
+        .string("tag")?
+        .ok_or_else(|| l.missing("tag", "the level transmitter's tag"))?;
+    if tag.trim().is_empty() {
+        return Err(l.err(at, "tag", "must not be empty"));
+    }
+    // level = lower + (upper − lower) · percent / 100.
+    Ok(Some(tags.signal(
+        Source::Tag(TagRef {
+            tag: tag.to_string(),
+            unit: "%".to_string(),
+            conv: ToSi {
+                scale: (upper.si - lower.si) / 100.0,
+                offset: lower.si,
+            },
+            at,
+        }),
+        false,
+    )))
 }
 
 /// Every `[[analyser]]`, at most one per species.

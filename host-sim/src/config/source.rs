@@ -25,11 +25,18 @@ pub(super) enum Source {
 
 /// Read `{ value, unit }` / `{ tag, unit }` from table `t`.
 pub(super) fn source_of(t: &Tbl<'_>, conv: Conv, mode: TagMode) -> R<Source> {
-    let allowed: &[&str] = match mode {
+    source_with(t, conv, mode, &[])
+}
+
+/// As [`source_of`], leaving the keys `extra` to the caller.
+pub(super) fn source_with(t: &Tbl<'_>, conv: Conv, mode: TagMode, extra: &[&str]) -> R<Source> {
+    let base: &[&str] = match mode {
         TagMode::Never => &["value", "unit"],
         TagMode::Allowed => &["value", "tag", "unit"],
         TagMode::Only => &["tag", "unit"],
     };
+    let allowed: Vec<&str> = base.iter().chain(extra).copied().collect();
+    let allowed = allowed.as_slice();
     if let Some((k, _)) = t
         .entries()
         .into_iter()
@@ -113,9 +120,16 @@ impl TagUses {
                     scale: t.conv.scale,
                     offset: t.conv.offset,
                     unit: t.unit,
+                    density: None,
                 }
             }
         }
+    }
+
+    /// Record a use of `tag` at `at` that [`TagUses::signal`] does not
+    /// make (a mass flow's density).
+    pub(super) fn record(&mut self, at: usize, tag: &str, flow: bool) {
+        self.uses.push((at, tag.to_string(), flow));
     }
 
     /// Distinct tags in first-use order, with whether any use is a flow.

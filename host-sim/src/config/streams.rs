@@ -1,6 +1,7 @@
 //! `[[inlet]]` and `[[outlet]]`: what flows in (with its composition) and
 //! what flows out (metered, or through an orifice or over a weir).
 
+use super::flow::flow_signal;
 use super::quantity::{Conv, TagMode};
 use super::source::{non_negative_source, source_of, TagUses};
 use super::table::{array_section, list, unique_name, Tbl, R};
@@ -32,16 +33,12 @@ pub(super) fn read_inlets(
         t.check_keys(INLET_KEYS)?;
         let (name, at) = t.name_string("name", "a name for reports")?;
         unique_name(&t, name, at, &mut seen, "inlet")?;
-        let flow = t
-            .signal("flow", Conv::Kind(Kind::Flow), TagMode::Allowed)?
-            .ok_or_else(|| {
-                t.missing(
-                    "flow",
-                    "{ tag = \"...\", unit = \"m3/h\" } or { value, unit }",
-                )
-            })?;
-        let flow = non_negative_source(t.ctx, flow)?;
-        let flow = tags.signal(flow, true);
+        let flow = flow_signal(&t, "flow", tags)?.ok_or_else(|| {
+            t.missing(
+                "flow",
+                "{ tag = \"...\", unit = \"m3/h\" } or { value, unit }",
+            )
+        })?;
         let feed = read_feed(&t, species, tags)?;
         inlets.push(Inlet {
             name: name.to_string(),
@@ -136,11 +133,8 @@ fn read_outlet(t: &Tbl<'_>, top: f64, tags: &mut TagUses) -> R<OutletKind> {
         list(used.get(2..).unwrap_or(&[]))
     );
     if kind == 0 {
-        let flow = t
-            .signal("flow", Conv::Kind(Kind::Flow), TagMode::Allowed)?
-            .ok_or_else(|| t.missing("flow", &hint))?;
-        let flow = non_negative_source(t.ctx, flow)?;
-        return Ok(OutletKind::Measured(tags.signal(flow, true)));
+        let flow = flow_signal(t, "flow", tags)?.ok_or_else(|| t.missing("flow", &hint))?;
+        return Ok(OutletKind::Measured(flow));
     }
     let cd = discharge_coefficient(t)?;
     if kind == 1 {

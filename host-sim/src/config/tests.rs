@@ -8,6 +8,7 @@ mod estimator;
 mod initial;
 mod log;
 mod measured;
+mod plant_units;
 mod plc;
 mod reaction;
 mod streams;
@@ -212,6 +213,7 @@ fn full_example_parses_into_si() {
             scale,
             offset,
             unit,
+            density: None,
         } => {
             assert_eq!(tag, "FI-101");
             assert!(close(*scale, 1.0 / 3600.0));
@@ -452,8 +454,9 @@ fn unknown_unit_lists_the_valid_units() {
     assert_eq!(
         e.to_string(),
         format!(
-            "plant.toml:{}: [[inlet]] flow.unit: unknown flow unit \"m3/hr\"; valid: m3/s, m3/h, \
-                 m3/min, L/s, L/min, L/h, US gal/min, ft3/min, ft3/h",
+            "plant.toml:{}: [[inlet]] flow.unit: unknown flow unit \"m3/hr\"; volumetric: m3/s, \
+                 m3/h, m3/min, L/s, L/min, L/h, US gal/min, ft3/min, ft3/h; mass, with a density: \
+                 kg/s, kg/min, kg/h, t/h, t/d, lb/min, lb/h",
             line_of(&text, "m3/hr")
         )
     );

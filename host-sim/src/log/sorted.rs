@@ -23,8 +23,9 @@ use std::io::{self, BufReader, BufWriter, Read, Seek, Write};
 
 use super::lines::Line;
 
-/// Bytes of line text held in memory per run while cutting (32 MiB).
-pub const RUN_BUDGET: usize = 32 << 20;
+/// Bytes held in memory per run while cutting (24 MiB: line text, and 32
+/// bytes of index per line, the index taking at most a quarter).
+pub const RUN_BUDGET: usize = 24 << 20;
 /// Buffer of each run's reader while merging (64 KiB).
 pub const MERGE_BUFFER: usize = 64 << 10;
 /// Most runs merged at once.
@@ -67,13 +68,16 @@ pub struct Sorter {
 }
 
 impl Sorter {
-    /// A sorter holding at most `budget` bytes of line text at once (the
-    /// index adds 32 bytes per line).
+    /// A sorter holding at most `budget` bytes at once: three quarters for
+    /// line text, a quarter for the index (32 bytes a line). Both buffers
+    /// are allocated once at their full size and never grow (a line longer
+    /// than the text buffer is a run of its own).
     pub fn new(budget: usize) -> Self {
+        let budget = budget.max(64);
         Self {
-            budget: budget.max(1),
-            index: Vec::new(),
-            bytes: Vec::new(),
+            budget: budget / 4 * 3,
+            index: Vec::with_capacity((budget / 4 / 32).max(1)),
+            bytes: Vec::with_capacity(budget / 4 * 3),
             runs: Vec::new(),
             figures: SortFigures::default(),
         }
@@ -81,6 +85,10 @@ impl Sorter {
 
     /// Add one line.
     pub fn push(&mut self, e: Entry<'_>) -> io::Result<()> {
+        let len = e.text.map_or(0, <[u8]>::len);
+        if self.index.len() == self.index.capacity() || self.bytes.len() + len > self.budget {
+            self.flush()?;
+        }
         let start = self.bytes.len();
         let len = match e.text {
             Some(text) => {
@@ -90,9 +98,6 @@ impl Sorter {
             None => u32::MAX,
         };
         self.index.push((e.t, e.line, start, len));
-        if self.bytes.len() + 32 * self.index.len() >= self.budget {
-            self.flush()?;
-        }
         Ok(())
     }
 

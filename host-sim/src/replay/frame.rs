@@ -12,23 +12,38 @@ use crate::to_kernel::{I, O};
 struct Source {
     signal: Signal,
     index: Option<usize>,
+    /// A mass flow's density tag.
+    density: Option<usize>,
 }
 
 impl Source {
     fn new(plant: &Plant, signal: &Signal) -> Self {
+        let find = |t: &str| plant.tags.iter().position(|o| o.tag == t);
         Self {
             signal: signal.clone(),
-            index: signal
-                .tag()
-                .and_then(|t| plant.tags.iter().position(|o| o.tag == t)),
+            index: signal.tag().and_then(find),
+            density: signal.density().and_then(|d| find(&d.tag)),
         }
     }
 
-    /// SI value and state (constants are always exact).
+    /// SI value and state (constants are always exact). A mass flow with a
+    /// density tag is missing or stale when either tag is.
     fn read(&self, samples: &[TagSample]) -> (f64, SampleState) {
         match self.index.and_then(|i| samples.get(i)) {
             None => (self.signal.to_si(0.0), SampleState::Exact),
-            Some(s) => (self.signal.to_si(s.value), s.state),
+            Some(s) => match self.density.and_then(|i| samples.get(i)) {
+                None => (self.signal.to_si(s.value), s.state),
+                Some(d) => {
+                    let state = match (s.state, d.state) {
+                        (SampleState::Missing, _) | (_, SampleState::Missing) => {
+                            SampleState::Missing
+                        }
+                        (SampleState::Stale, _) | (_, SampleState::Stale) => SampleState::Stale,
+                        (mass, _) => mass,
+                    };
+                    (self.signal.to_si_with(s.value, d.value), state)
+                }
+            },
         }
     }
 

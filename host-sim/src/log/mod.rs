@@ -78,6 +78,7 @@ mod header;
 mod lines;
 pub mod sorted;
 mod stats;
+pub mod storage;
 pub mod time;
 
 #[cfg(test)]
@@ -161,6 +162,8 @@ struct TagState {
     queue: VecDeque<Point>,
     /// Current run of identical values.
     flat: Option<FlatRun>,
+    /// Intervals and changes between stored points.
+    storage: storage::Histogram,
 }
 
 impl TagState {
@@ -461,6 +464,7 @@ impl LogReader {
                 prev: None,
                 queue: VecDeque::new(),
                 flat: None,
+                storage: storage::Histogram::default(),
             })
             .collect();
         let time_col_name = header.get(time_col).cloned().unwrap_or_default();
@@ -944,7 +948,8 @@ impl LogReader {
                 limit: self.buffer.limit,
             });
         }
-        if let Some(last) = s.last() {
+        if let Some(last) = s.last().copied() {
+            s.storage.add(t.saturating_sub(last.t), raw - last.v);
             if t.saturating_sub(last.t) > s.max_age {
                 ts.gaps.push(Window {
                     start: last.t,
@@ -972,6 +977,7 @@ impl LogReader {
                 close_flat(&run, self.flat_line_ms, ts);
             }
             stats::close_run(&mut ts.open_missing, &mut ts.missing_runs);
+            ts.storage = s.storage.pattern();
         }
     }
 }

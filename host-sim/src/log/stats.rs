@@ -144,6 +144,9 @@ pub struct TagStats {
     pub missing_runs: WindowList,
     /// States returned by `sample` (`ticks.stale` is the stale-tick count).
     pub ticks: StateTicks,
+    /// How the tag was stored: its typical interval, and whether it looks
+    /// exception-stored (complete once the log has been read).
+    pub storage: super::storage::Pattern,
     /// The missing-value run still open (closed by the next valid value or
     /// the end of the log).
     #[serde(skip)]

@@ -380,7 +380,16 @@ fn run_replay(
     match replay::run(&req) {
         Ok(outcome) => {
             print!("{}", outcome.text);
-            ExitCode::SUCCESS
+            match &outcome.summary.verdict {
+                None => ExitCode::SUCCESS,
+                Some(why) => {
+                    eprintln!(
+                        "error: the replay ran, but {why} (outputs written to {})",
+                        out.display()
+                    );
+                    ExitCode::from(3)
+                }
+            }
         }
         Err(e) => {
             eprintln!("error: {e}");

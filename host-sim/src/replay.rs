@@ -20,6 +20,7 @@
 //! is held whole.
 
 pub mod assemble;
+pub mod checks;
 pub mod estimates;
 pub mod figures;
 pub mod frame;
@@ -93,6 +94,14 @@ pub enum ReplayError {
     },
     /// The log holds no usable data.
     EmptyLog(PathBuf),
+    /// The plant and its log disagree so that nothing useful can follow
+    /// ([`checks`]).
+    Check {
+        /// The configuration file.
+        path: PathBuf,
+        /// What is wrong and what to check.
+        message: String,
+    },
     /// Writing an output failed.
     Io {
         /// The file being written.
@@ -120,6 +129,7 @@ impl fmt::Display for ReplayError {
                 "{}: the log holds no valid timestamped data to replay",
                 p.display()
             ),
+            ReplayError::Check { path, message } => write!(f, "{}: {message}", path.display()),
             ReplayError::Io { path, error } => write!(f, "{}: {error}", path.display()),
         }
     }
@@ -220,6 +230,7 @@ struct Replay<'a, S, const N: usize, const D: usize> {
     geometry: Geometry<f64>,
     level_error: LevelError,
     bias_names: Vec<String>,
+    checks: checks::Checks,
 }
 
 fn run_typed<S: Scalar, const N: usize, const D: usize>(
@@ -269,6 +280,7 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
         geometry: Geometry::new(plant.shape.clone()).map_err(kernel_err(plant))?,
         level_error: LevelError::default(),
         bias_names,
+        checks: checks::Checks::default(),
     };
     let started = Instant::now();
     let t_end = replay.drive(&mut reader, &mut sources, frame)?;
@@ -365,6 +377,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
             (z, v)
         });
         if let Some(z) = frame.level.filter(|z| z.is_finite()) {
+            self.checks.level(self.req.plant, &self.geometry, t, z)?;
             let open_level = open.as_ref().map_or(est.level, |o| o.level).to_f64();
             self.level_error.add(open_level - z);
         }
@@ -405,7 +418,23 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
         self.labs.finish();
         self.record.finish();
         let stats = reader.stats();
-        let summary = self.summary(stats, sources, t_end, wall);
+        let level_gate = self.main.observer().map(|o| {
+            (
+                o.counters().level_accepted.into(),
+                o.counters().level_rejected.into(),
+            )
+        });
+        let verdict = self.checks.finish(
+            plant,
+            &self.geometry,
+            stats,
+            self.labs.results(),
+            t_end,
+            level_gate,
+        )?;
+        let mut summary = self.summary(stats, sources, t_end, wall);
+        summary.warnings = std::mem::take(&mut self.checks.warnings);
+        summary.verdict = verdict;
         self.csv.finish()?;
         self.figures.write(
             req.out_dir,
@@ -585,6 +614,8 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
                 concentration_sigmas_mol_m3: est.concentration_sigma.as_ref().map(by_species),
             },
             outputs: outputs.into_iter().map(String::from).collect(),
+            warnings: Vec::new(),
+            verdict: None,
             caution: CAUTION,
         }
     }

@@ -298,6 +298,12 @@ pub struct Summary {
     pub final_state: FinalOut,
     /// Files written.
     pub outputs: Vec<String>,
+    /// What the checks of the plant against its log found
+    /// ([`super::checks`]).
+    pub warnings: Vec<String>,
+    /// Set when the usable data do not cover enough of the span: why. The
+    /// outputs are written, and `holdup replay` exits with status 3.
+    pub verdict: Option<String>,
     /// The usual cautions.
     pub caution: &'static str,
 }
@@ -522,6 +528,15 @@ impl fmt::Display for Summary {
                     self.lab_outside_replay
                 )?;
             }
+        }
+        if !self.warnings.is_empty() {
+            writeln!(f, "Warnings (the plant against its log):")?;
+            for w in &self.warnings {
+                writeln!(f, "  - {w}")?;
+            }
+        }
+        if let Some(v) = &self.verdict {
+            writeln!(f, "NOT USABLE: {v}")?;
         }
         writeln!(f, "Outputs: {}", self.outputs.join(", "))?;
         write!(f, "\n{}", self.caution)

@@ -56,7 +56,6 @@
 //! no polling. The maximum relative error of `c_A` is taken over all hourly
 //! rows of `estimates.csv` against the closed form above.
 
-use std::fmt::Write as _;
 use std::fs::{self, File};
 use std::io::{self, BufWriter, Write};
 use std::path::{Path, PathBuf};

@@ -29,8 +29,9 @@ pub(super) enum Layout {
 }
 
 /// Timestamp column names looked for when `time_column` is not set, in
-/// this order, ignoring ASCII case. `time_s`, `time_ms` and `time_us` also
-/// give the unit of numeric timestamps when `[log] time` is `auto`.
+/// this order, ignoring ASCII case. A time column whose name ends in `_s`,
+/// `_ms` or `_us` gives the unit of numeric timestamps when `[log] time` is
+/// `auto` ([`unit_of`]).
 pub(super) const TIME_NAMES: &[&str] = &[
     "time",
     "timestamp",
@@ -57,14 +58,18 @@ pub(super) struct Decided {
     pub unit: Option<TimeFormat>,
 }
 
-/// The unit a time column's name implies (`time_ms` → milliseconds).
+/// The unit a time column's name implies: a name ending in `_s`, `_ms` or
+/// `_us` (any case; `time_ms`, `sampled_ms`).
 fn unit_of(name: &str) -> Option<TimeFormat> {
     let n = name.to_ascii_lowercase();
-    match n.as_str() {
-        "time_s" => Some(TimeFormat::Epoch),
-        "time_ms" => Some(TimeFormat::EpochMs),
-        "time_us" => Some(TimeFormat::EpochUs),
-        _ => None,
+    if n.ends_with("_ms") {
+        Some(TimeFormat::EpochMs)
+    } else if n.ends_with("_us") {
+        Some(TimeFormat::EpochUs)
+    } else if n.ends_with("_s") {
+        Some(TimeFormat::Epoch)
+    } else {
+        None
     }
 }
 

@@ -81,6 +81,8 @@ pub mod time;
 
 #[cfg(test)]
 mod tests;
+#[cfg(test)]
+mod tests_historian;
 
 use std::collections::VecDeque;
 use std::fmt;

@@ -364,7 +364,7 @@ impl LogStats {
                 self.rows
             );
         }
-        causes.sort_by(|a, b| b.0.cmp(&a.0));
+        causes.sort_by_key(|c| std::cmp::Reverse(c.0));
         causes
             .into_iter()
             .map(|(_, c)| c)

@@ -17,9 +17,10 @@ pub enum TimeError {
     NoOffset,
 }
 
-/// Does the text look like a number (epoch seconds)? Used by auto-detection.
+/// Does the text look like a number (epoch seconds, or microseconds within
+/// range)? Used by auto-detection.
 pub fn looks_numeric(text: &[u8]) -> bool {
-    parse_epoch(text).is_ok()
+    parse_epoch(text).is_ok() || parse_epoch_unit(text, 1000).is_ok()
 }
 
 /// Seconds since the Unix epoch, decimals allowed (`1772344800`,

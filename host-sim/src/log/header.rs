@@ -32,7 +32,7 @@ pub(super) enum Layout {
 /// this order, ignoring ASCII case. A time column whose name ends in `_s`,
 /// `_ms` or `_us` gives the unit of numeric timestamps when `[log] time` is
 /// `auto` ([`unit_of`]).
-pub(super) const TIME_NAMES: &[&str] = &[
+pub const TIME_NAMES: &[&str] = &[
     "time",
     "timestamp",
     "datetime",
@@ -43,11 +43,11 @@ pub(super) const TIME_NAMES: &[&str] = &[
     "time_us",
 ];
 /// Long format: tag column names, ignoring ASCII case.
-pub(super) const TAG_NAMES: &[&str] = &["tag", "tag_name", "tagname"];
+pub const TAG_NAMES: &[&str] = &["tag", "tag_name", "tagname"];
 /// Long format: value column names, ignoring ASCII case.
-pub(super) const VALUE_NAMES: &[&str] = &["value", "val"];
+pub const VALUE_NAMES: &[&str] = &["value", "val"];
 /// Long format: quality column names, ignoring ASCII case.
-pub(super) const QUALITY_NAMES: &[&str] = &["quality", "quality_code"];
+pub const QUALITY_NAMES: &[&str] = &["quality", "quality_code"];
 
 /// The header's decisions.
 #[derive(Debug)]

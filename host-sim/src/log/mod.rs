@@ -7,17 +7,25 @@
 //!
 //! # Formats
 //!
-//! Comma-separated, a header row required (a UTF-8 byte-order mark and
+//! Delimited text with a header row required (a UTF-8 byte-order mark and
 //! `\r\n` line ends are accepted; fields may be quoted with `"`, a quoted
-//! field ends on its own line).
+//! field ends on its own line). The delimiter is `,` `;` tab or `|`
+//! ([`LogOptions::delimiter`]; detected from the header and the first
+//! [`DETECT_ROWS`] rows: the one giving the most fields, at least two, the
+//! same number on every row), and numbers use a decimal point or comma
+//! ([`LogOptions::decimal`]; a comma detected only with a delimiter other
+//! than `,`). Quoted numbers are numbers.
 //!
-//! - **Wide**: a timestamp column (named by [`LogOptions::time_column`],
-//!   matched exactly, then ignoring ASCII case; default the first column)
+//! - **Wide**: a timestamp column ([`LogOptions::time_column`], matched
+//!   exactly, then ignoring ASCII case; else the first of
+//!   [`TIME_NAMES`] present, ignoring case; else the first column)
 //!   and one column per tag, named exactly as the tag. Other columns are
 //!   ignored. Rows may be irregular in time.
-//! - **Long**: columns `time` (or `timestamp`, or the configured
-//!   `time_column`), `tag`, `value` and optionally `quality`, header names
-//!   matched ignoring ASCII case, in any order; other columns are ignored.
+//! - **Long**: timestamp, tag, value and optionally quality columns, named
+//!   by `time_column`, `tag_column`, `value_column`, `quality_column` or
+//!   found by the names of [`TIME_NAMES`], [`TAG_NAMES`],
+//!   [`VALUE_NAMES`], [`QUALITY_NAMES`] (ignoring ASCII
+//!   case), in any order; other columns are ignored.
 //!   One stored point per row, rows in time order; a tag appears only when
 //!   it was stored (exception-compressed). Tag values are matched exactly
 //!   (after trimming blanks); rows of other tags are counted and skipped.
@@ -26,15 +34,23 @@
 //!   standard this reader claims): ≥ 192 good, 64–191 uncertain, < 64 bad.
 //!   An empty quality cell is good; other text is treated as uncertain.
 //!   Bad points are rejected, uncertain ones used; both are counted.
-//! - **Auto** ([`LogFormat::Auto`]): long if the header has both a `tag` and
-//!   a `value` column, wide otherwise.
+//! - **Auto** ([`LogFormat::Auto`]): long if the header has both a tag and
+//!   a value column, wide otherwise.
 //!
-//! Timestamps are epoch seconds (decimals allowed) or ISO 8601 / RFC 3339
-//! with an offset (`2026-03-01T06:00:00+01:00`, `2026-03-01T05:00:00Z`,
-//! fractional seconds allowed); [`TimeFormat::Auto`] decides on the first
-//! data row whose timestamp is either. A date-time without an offset is an
-//! error ([`LogError::NoOffset`]): local times are ambiguous. Internally time
-//! is `i64` milliseconds since the Unix epoch.
+//! Timestamps are epoch seconds (decimals allowed), milliseconds or
+//! microseconds, ISO 8601 / RFC 3339 (`2026-03-01T06:00:00+01:00`,
+//! `2026-03-01T05:00:00Z`, fractional seconds allowed), or a strftime-like
+//! pattern ([`TimeFormat::Pattern`]). [`TimeFormat::Auto`] decides on the
+//! first readable timestamp: a number is seconds, milliseconds with 13
+//! digits and microseconds with 16 (a guess, reported in
+//! [`LogStats::time_unit_guessed`]) unless the column's name ends in `_s`,
+//! `_ms` or `_us`; text is ISO 8601. A stamp with an offset is read with
+//! it; one without is local time in [`LogOptions::timezone`] (without a
+//! zone: [`LogError::NoOffset`]). A local time in a skipped hour (clocks
+//! set forward) rejects its row ([`LogStats::dst_skipped`]); one in a
+//! repeated hour takes the first offset unless that would put it before
+//! the previous accepted row, then the second ([`LogStats::dst_repeated`]).
+//! Internally time is `i64` milliseconds since the Unix epoch.
 //!
 //! A value cell that is empty, `NaN`, infinite or not a number is a missing
 //! value of that tag at that row (counted). Every other value is stored as
@@ -98,6 +114,7 @@ use cells::{comma_number, missing_detail, parse_quality, parse_value, point_numb
 use error::shown;
 pub use error::LogError;
 use header::Layout;
+pub use header::{QUALITY_NAMES, TAG_NAMES, TIME_NAMES, VALUE_NAMES};
 use lines::{is_blank, Fields, Line, LineReader};
 pub use stats::{Fault, FaultList, LogStats, StateTicks, TagStats, Window, WindowList, KEEP_FIRST};
 use time::{
@@ -948,7 +965,7 @@ impl LogReader {
 }
 
 /// Data rows read ahead to detect the delimiter and the decimal separator.
-const DETECT_ROWS: usize = 5;
+pub const DETECT_ROWS: usize = 5;
 
 /// A timestamp read: an instant, or a wall-clock time (ms as if UTC) to
 /// place in the log's zone.

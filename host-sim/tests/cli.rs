@@ -1000,7 +1000,7 @@ fn empty_log_error_names_the_cause_and_the_key() {
     let err = String::from_utf8_lossy(&o.stderr);
     assert!(
         err.contains(
-            "the log holds no valid timestamped data to replay: 3 of 3 rows have an \
+            "the log holds no valid timestamped data to replay: 3 of 3 rows with an \
              unreadable timestamp (first at line 2: '03/01/2026 11:30:00 PM'"
         ) && err.contains("[log] time_format"),
         "{err}"

@@ -2,7 +2,7 @@
 
 use std::collections::HashMap;
 
-use super::time::{looks_numeric, parse_iso};
+use super::time::{looks_numeric, parse_iso_local};
 use super::LogError;
 use crate::plant::{LogFormat, LogOptions, TagOptions, TimeFormat};
 
@@ -83,9 +83,9 @@ pub(super) fn layout(
     tags: &[TagOptions],
     delimiter: u8,
 ) -> Result<Decided, LogError> {
-    let looks_like_data = header
-        .iter()
-        .all(|h| h.is_empty() || looks_numeric(h.as_bytes()) || parse_iso(h.as_bytes()).is_ok());
+    let looks_like_data = header.iter().all(|h| {
+        h.is_empty() || looks_numeric(h.as_bytes()) || parse_iso_local(h.as_bytes()).is_ok()
+    });
     if looks_like_data {
         return Err(LogError::NoHeader {
             path,

@@ -318,6 +318,14 @@ impl LogReader {
         };
         let decimal = match opts.decimal {
             Decimal::Auto => detect_decimal(delimiter, &ahead),
+            Decimal::Comma if delimiter == b',' => {
+                return Err(LogError::BadHeader {
+                    path,
+                    line: header_line,
+                    why: "[log] decimal = \"comma\" but the fields are separated by ','; \
+                          set [log] delimiter",
+                })
+            }
             d => d,
         };
         let mut fields = Fields::with_delimiter(delimiter);

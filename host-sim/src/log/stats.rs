@@ -252,6 +252,14 @@ impl LogStats {
             + self.malformed.total
     }
 
+    /// The delimiter as a byte.
+    fn delimiter_byte(&self) -> u8 {
+        match self.delimiter.as_str() {
+            "tab" => b'\t',
+            d => d.bytes().next().unwrap_or(b','),
+        }
+    }
+
     /// Why no tag has any valid point (for a log that gives nothing to
     /// replay): each cause that occurred, the most frequent first, with its
     /// count and first offending line.
@@ -269,9 +277,10 @@ impl LogStats {
                 causes.push((
                     list.total,
                     format!(
-                        "{} of {} rows {what}{}{hint}",
+                        "{} of {} {} {what}{}{hint}",
                         list.total,
                         self.rows,
+                        plural(self.rows, "row", "rows"),
                         first_fault(list, zone)
                     ),
                 ));
@@ -285,26 +294,20 @@ impl LogStats {
                  times without offset"
             }
         };
-        row_cause(&self.bad_time, "have an unreadable timestamp", time_hint);
+        row_cause(&self.bad_time, "with an unreadable timestamp", time_hint);
         row_cause(
             &self.dst_skipped,
-            "have a local time that does not exist (clocks set forward)",
+            "with a local time that does not exist (clocks set forward)",
             "",
         );
         row_cause(
             &self.backwards,
-            "go back in time",
+            "going back in time",
             "; rows must be in time order",
         );
         let wrong_hint = format!(
             "; the delimiter is {}{}: set [log] delimiter if that is wrong",
-            super::header::delimiter_name(self.delimiter.bytes().next().map_or(b',', |b| {
-                if self.delimiter == "tab" {
-                    b'\t'
-                } else {
-                    b
-                }
-            })),
+            super::header::delimiter_name(self.delimiter_byte()),
             if self.delimiter_detected {
                 " (detected)"
             } else {
@@ -313,18 +316,19 @@ impl LogStats {
         );
         row_cause(
             &self.wrong_fields,
-            "have a different number of fields than the header",
+            "with a different number of fields than the header",
             &wrong_hint,
         );
-        row_cause(&self.malformed, "are malformed", "");
+        row_cause(&self.malformed, "malformed", "");
         if self.rows_other_tags > 0 {
             causes.push((
                 self.rows_other_tags,
                 format!(
-                    "{} of {} rows are of tags not asked for (first at line {}; tags seen: {}); \
+                    "{} of {} {} of tags not asked for (first at line {}; tags seen: {}); \
                      tags are matched exactly",
                     self.rows_other_tags,
                     self.rows,
+                    plural(self.rows, "row", "rows"),
                     self.first_other_tag_line.unwrap_or(0),
                     self.other_tags_seen
                         .iter()
@@ -341,17 +345,28 @@ impl LogStats {
                 "; a decimal comma needs [log] decimal = \"comma\" and a delimiter other than ','"
             };
             let lists = [
-                (&t.missing, "values missing or not numbers", decimal),
-                (&t.bad_quality, "points of bad quality (rejected)", ""),
+                (
+                    &t.missing,
+                    "value missing or not a number",
+                    "values missing or not numbers",
+                    decimal,
+                ),
+                (
+                    &t.bad_quality,
+                    "point of bad quality (rejected)",
+                    "points of bad quality (rejected)",
+                    "",
+                ),
             ];
-            for (list, what, hint) in lists {
+            for (list, one, many, hint) in lists {
                 if list.total > 0 {
                     causes.push((
                         list.total,
                         format!(
-                            "{}: {} {what}{}{hint}",
+                            "{}: {} {}{}{hint}",
                             t.tag,
                             list.total,
+                            plural(list.total, one, many),
                             first_fault(list, zone)
                         ),
                     ));
@@ -428,11 +443,7 @@ impl LogStats {
         if self.delimiter != "," {
             dialect.push_str(&format!(
                 ", {} delimiter",
-                super::header::delimiter_name(if self.delimiter == "tab" {
-                    b'\t'
-                } else {
-                    self.delimiter.bytes().next().unwrap_or(b',')
-                })
+                super::header::delimiter_name(self.delimiter_byte())
             ));
         }
         if self.decimal == Decimal::Comma {

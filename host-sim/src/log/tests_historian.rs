@@ -158,7 +158,7 @@ fn us_dates_need_the_pattern_and_then_read_month_first() {
     assert_eq!(r.first_time().ok().flatten(), None);
     let why = r.stats().why_empty();
     assert!(
-        why.starts_with("3 of 3 rows have an unreadable timestamp (first at line 2: '03/01/2026 11:30:00 PM' is not")
+        why.starts_with("3 of 3 rows with an unreadable timestamp (first at line 2: '03/01/2026 11:30:00 PM' is not")
             && why.contains("[log] time_format"),
         "{why}"
     );
@@ -221,7 +221,7 @@ fn epoch_milliseconds_long_log_with_own_column_names() {
     assert_eq!(r.first_time().ok().flatten(), None);
     let why = r.stats().why_empty();
     assert!(
-        why.contains("5 of 5 rows are of tags not asked for (first at line 2; tags seen: 'FI-1', 'LI-1', 'AI-9')"),
+        why.contains("5 of 5 rows of tags not asked for (first at line 2; tags seen: 'FI-1', 'LI-1', 'AI-9')"),
         "{why}"
     );
 }
@@ -315,11 +315,11 @@ fn empty_log_causes_name_the_first_line() {
         ),
         (
             "time,FI-1\n2026-03-01T05:00:00Z,1,9\n",
-            "1 of 1 rows have a different number of fields than the header (first at line 2",
+            "1 of 1 row with a different number of fields than the header (first at line 2",
         ),
         (
             "time,tag,value,quality\n2026-03-01T05:00:00Z,FI-1,1,bad\n",
-            "FI-1: 1 points of bad quality (rejected) (first at line 2",
+            "FI-1: 1 point of bad quality (rejected) (first at line 2",
         ),
     ];
     for (text, want) in cases {
@@ -328,4 +328,20 @@ fn empty_log_causes_name_the_first_line() {
         let why = r.stats().why_empty();
         assert!(why.contains(want), "{why}");
     }
+}
+
+#[test]
+fn stamps_with_an_offset_keep_it_in_a_zoned_log() {
+    // 06:00+01:00 is T0 whatever the zone (RFC 3339); 2026-03-01 07:00
+    // local in Europe/Vienna (CET, UTC+1, common practice) is T0 + 1 h.
+    let o = LogOptions {
+        timezone: Some(vienna()),
+        ..LogOptions::default()
+    };
+    let text =
+        "time,FI-1\n2026-03-01T06:00:00+01:00,1\n2026-03-01 07:00:00,2\n2026-03-01T06:30:00Z,3\n";
+    let mut r = open_text(text, &o, &["FI-1"]);
+    assert_eq!(exact(&mut r, T0), [1.0]);
+    assert_eq!(exact(&mut r, T0 + H), [2.0]);
+    assert_eq!(exact(&mut r, T0 + 90 * MIN), [3.0]);
 }

@@ -10,7 +10,7 @@ use crate::plant::{
 };
 use crate::zone::Zone;
 
-const LOG_KEYS: &[&str] = &[
+pub(super) const LOG_KEYS: &[&str] = &[
     "format",
     "time",
     "time_format",

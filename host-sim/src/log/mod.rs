@@ -737,7 +737,18 @@ impl LogReader {
             if looks_numeric(text) {
                 let digits = integer_digits(text);
                 let (unit, why) = match self.time_unit {
-                    Some(u) => (u, format!("from the column name '{}'", self.time_col_name)),
+                    Some(u) => (
+                        u,
+                        format!(
+                            "{} from the column name '{}'",
+                            match u {
+                                TimeFormat::EpochMs => "milliseconds",
+                                TimeFormat::EpochUs => "microseconds",
+                                _ => "seconds",
+                            },
+                            self.time_col_name
+                        ),
+                    ),
                     None => match digits {
                         13 => (
                             TimeFormat::EpochMs,

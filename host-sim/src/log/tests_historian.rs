@@ -207,7 +207,7 @@ fn epoch_milliseconds_long_log_with_own_column_names() {
     assert!(st
         .time_unit_guessed
         .as_deref()
-        .is_some_and(|g| g.contains("'sampled_ms'")));
+        .is_some_and(|g| g == "milliseconds from the column name 'sampled_ms'"));
     assert_eq!(st.tags[0].bad_quality.total, 1);
     assert_eq!(
         (st.rows_other_tags, st.other_tags_seen.clone()),

@@ -178,3 +178,35 @@ fn time_zone_pattern_and_dialect_keys() {
     let e = err(&text);
     check(&e, &text, ":", "[log] delimiter", &["\"tab\""]);
 }
+
+#[test]
+fn every_log_key_is_documented() {
+    // Each key of [log] appears in the doc's example block (as `key =`,
+    // commented or not) and in its prose (as `key`).
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("../docs/config.md");
+    let doc = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let block: String = doc
+        .lines()
+        .skip_while(|l| !l.starts_with("[log]"))
+        .take_while(|l| !l.starts_with("[tags."))
+        .collect::<Vec<_>>()
+        .join("\n");
+    let prose: String = doc
+        .lines()
+        .skip_while(|l| !l.starts_with("## Reading the log"))
+        .take_while(|l| !l.starts_with("## Input conditioning"))
+        .collect::<Vec<_>>()
+        .join("\n");
+    for key in crate::config::log::LOG_KEYS {
+        assert!(
+            block.contains(&format!("{key} =")),
+            "[log] {key} not in the example"
+        );
+        if *key != "format" && *key != "max_age" {
+            assert!(
+                prose.contains(&format!("`{key}")),
+                "[log] {key} not in \"Reading the log\""
+            );
+        }
+    }
+}

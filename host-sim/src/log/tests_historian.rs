@@ -345,3 +345,19 @@ fn stamps_with_an_offset_keep_it_in_a_zoned_log() {
     assert_eq!(exact(&mut r, T0 + H), [2.0]);
     assert_eq!(exact(&mut r, T0 + 90 * MIN), [3.0]);
 }
+
+#[test]
+fn long_log_with_alias_names_and_a_unit_in_the_time_name() {
+    // `time_s`, `TagName`, `Value`: found without configuration; the unit
+    // (seconds) follows from the `_s` name. 1772341200 s = T0 (see above).
+    let text = "time_s,TagName,Value\n1772341200,FI-1,2.5\n1772341260.5,FI-1,2.75\n";
+    let mut r = open_text(text, &LogOptions::default(), &["FI-1"]);
+    assert_eq!(exact(&mut r, T0), [2.5]);
+    assert_eq!(exact(&mut r, T0 + 60_500), [2.75]);
+    let st = r.stats();
+    assert_eq!((st.format, st.time), (LogFormat::Long, TimeFormat::Epoch));
+    assert_eq!(
+        st.time_unit_guessed.as_deref(),
+        Some("seconds from the column name 'time_s'")
+    );
+}

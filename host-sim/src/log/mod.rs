@@ -213,8 +213,8 @@ pub struct LogReader {
     time_format: TimeFormat,
     /// Unit of numeric timestamps implied by the time column's name.
     time_unit: Option<TimeFormat>,
-    /// [`TimeFormat::Pattern`]: the pattern and whether it has an offset.
-    pattern: Option<(String, bool)>,
+    /// [`TimeFormat::Pattern`]: the pattern, parsed once.
+    pattern: Option<Pattern>,
     /// Zone of naive timestamps.
     zone: Option<Zone>,
     decimal_comma: bool,
@@ -345,7 +345,7 @@ impl LogReader {
         let decided = header::layout(path.clone(), header_line, &header, opts, tags, delimiter)?;
         let (layout, time_col) = (decided.layout, decided.time_col);
         let pattern = match (opts.time, &opts.time_pattern) {
-            (TimeFormat::Pattern, Some(p)) => Some((p.clone(), pattern_has_offset(p))),
+            (TimeFormat::Pattern, Some(p)) => Some(Pattern::new(p)),
             _ => None,
         };
         let states: Vec<TagState> = tags
@@ -781,7 +781,7 @@ impl LogReader {
                 })
             }
             TimeFormat::Pattern => match &self.pattern {
-                Some((p, offset)) => parse_pattern(text, p, *offset),
+                Some(p) => p.parse(text),
                 None => Err(TimeError::Invalid("no [log] time_format pattern")),
             },
         };
@@ -1008,37 +1008,51 @@ fn offset_text(seconds: i32) -> String {
     format!("{sign}{:02}:{:02}", m / 60, m % 60)
 }
 
-/// Does a strftime-like pattern carry an offset (`%z`, `%:z`, `%#z`, …)?
-fn pattern_has_offset(pattern: &str) -> bool {
-    use chrono::format::{Fixed, Item, StrftimeItems};
-    StrftimeItems::new(pattern).any(|i| {
-        matches!(
-            i,
-            Item::Fixed(
-                Fixed::TimezoneOffset
-                    | Fixed::TimezoneOffsetColon
-                    | Fixed::TimezoneOffsetDoubleColon
-                    | Fixed::TimezoneOffsetTripleColon
-                    | Fixed::TimezoneOffsetColonZ
-                    | Fixed::TimezoneOffsetZ
-                    | Fixed::RFC2822
-                    | Fixed::RFC3339
-            )
-        )
-    })
+/// A strftime-like timestamp pattern, its items parsed once.
+#[derive(Debug)]
+struct Pattern {
+    items: Vec<chrono::format::Item<'static>>,
+    /// Does it carry an offset (`%z`, `%:z`, …)? Then a stamp is an
+    /// instant, otherwise a wall-clock time.
+    offset: bool,
 }
 
-/// A timestamp by pattern: an instant when the pattern has an offset, a
-/// wall-clock time otherwise.
-fn parse_pattern(text: &[u8], pattern: &str, offset: bool) -> Result<Stamp, TimeError> {
-    let text = std::str::from_utf8(text).map_err(|_| TimeError::Invalid("not UTF-8 text"))?;
-    let bad = |_| TimeError::Invalid("does not match the pattern");
-    if offset {
-        let d = chrono::DateTime::parse_from_str(text, pattern).map_err(bad)?;
-        utc_in_range(d.timestamp_millis()).map(Stamp::Utc)
-    } else {
-        let d = chrono::NaiveDateTime::parse_from_str(text, pattern).map_err(bad)?;
-        Ok(Stamp::Local(d.and_utc().timestamp_millis()))
+impl Pattern {
+    fn new(pattern: &str) -> Self {
+        use chrono::format::{Fixed, Item, StrftimeItems};
+        let items = StrftimeItems::new(pattern)
+            .parse_to_owned()
+            .unwrap_or_else(|_| vec![Item::Error]);
+        let offset = items.iter().any(|i| {
+            matches!(
+                i,
+                Item::Fixed(
+                    Fixed::TimezoneOffset
+                        | Fixed::TimezoneOffsetColon
+                        | Fixed::TimezoneOffsetDoubleColon
+                        | Fixed::TimezoneOffsetTripleColon
+                        | Fixed::TimezoneOffsetColonZ
+                        | Fixed::TimezoneOffsetZ
+                        | Fixed::RFC2822
+                        | Fixed::RFC3339
+                )
+            )
+        });
+        Self { items, offset }
+    }
+
+    fn parse(&self, text: &[u8]) -> Result<Stamp, TimeError> {
+        let text = std::str::from_utf8(text).map_err(|_| TimeError::Invalid("not UTF-8 text"))?;
+        let bad = |_| TimeError::Invalid("does not match the pattern");
+        let mut parsed = chrono::format::Parsed::new();
+        chrono::format::parse(&mut parsed, text, self.items.iter()).map_err(bad)?;
+        if self.offset {
+            let d = parsed.to_datetime().map_err(bad)?;
+            utc_in_range(d.timestamp_millis()).map(Stamp::Utc)
+        } else {
+            let d = parsed.to_naive_datetime_with_offset(0).map_err(bad)?;
+            Ok(Stamp::Local(d.and_utc().timestamp_millis()))
+        }
     }
 }
 

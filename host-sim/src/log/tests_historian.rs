@@ -361,3 +361,22 @@ fn long_log_with_alias_names_and_a_unit_in_the_time_name() {
         Some("seconds from the column name 'time_s'")
     );
 }
+
+#[test]
+fn pattern_with_an_offset_needs_no_zone() {
+    // 01.03.2026 06:00 +0100 = 2026-03-01T05:00Z = T0 (RFC 3339 offset
+    // arithmetic); a stamp not matching the pattern is a counted bad time.
+    let o = LogOptions {
+        time: TimeFormat::Pattern,
+        time_pattern: Some("%d.%m.%Y %H:%M %z".into()),
+        ..LogOptions::default()
+    };
+    let text = "time;FI-1\n01.03.2026 06:00 +0100;1,5\n2026-03-01T05:01:00Z;2\n01.03.2026 05:02 +0000;2,5\n";
+    let mut r = open_text(text, &o, &["FI-1"]);
+    assert_eq!(exact(&mut r, T0), [1.5]);
+    assert_eq!(exact(&mut r, T0 + 2 * MIN), [2.5]);
+    drain(&mut r);
+    let bad = &r.stats().bad_time;
+    assert_eq!((bad.total, bad.first[0].line), (1, 3));
+    assert!(bad.first[0].detail.contains("does not match the pattern"));
+}

@@ -31,7 +31,7 @@ pub(super) enum Layout {
 /// Timestamp column names looked for when `time_column` is not set, in
 /// this order, ignoring ASCII case. A time column whose name ends in `_s`,
 /// `_ms` or `_us` gives the unit of numeric timestamps when `[log] time` is
-/// `auto` ([`unit_of`]).
+/// `auto`.
 pub const TIME_NAMES: &[&str] = &[
     "time",
     "timestamp",

@@ -345,6 +345,28 @@ fn write_log(path: &Path, case: Case) -> io::Result<u64> {
     Ok(fs::metadata(path)?.len())
 }
 
+/// Environment variable that makes this binary generate one log and exit
+/// (`<case name>=<path>`).
+const GENERATE_ENV: &str = "HOLDUP_BENCH_GENERATE";
+
+/// Write the case's log in a child process (this binary, with
+/// [`GENERATE_ENV`]), so that the memory the generator needs never counts
+/// in this process: Linux carries a process's peak RSS across `fork` and
+/// `exec` into its children's `ru_maxrss`, so a bench holding a large log
+/// in memory would report it as the replay's.
+fn generate(path: &Path, case: Case) -> io::Result<u64> {
+    let status = Command::new(std::env::current_exe()?)
+        .env(GENERATE_ENV, format!("{}={}", case.name, path.display()))
+        .status()?;
+    if !status.success() {
+        return Err(io::Error::other(format!(
+            "generating {} failed ({status})",
+            path.display()
+        )));
+    }
+    Ok(fs::metadata(path)?.len())
+}
+
 /// The plant file for the case: the bench plant, reading a long log for
 /// [`Layout::LongByTag`].
 fn plant_toml(case: Case) -> String {
@@ -373,7 +395,7 @@ fn prepare(root: &Path, case: Case) -> io::Result<(PathBuf, PathBuf, u64, bool)>
         }
     }
     let _ = fs::remove_file(&meta);
-    let len = write_log(&log, case)?;
+    let len = generate(&log, case)?;
     fs::write(&meta, meta_line(case.rows(), len) + "\n")?;
     Ok((config, log, len, false))
 }
@@ -631,6 +653,24 @@ fn scipy_available() -> bool {
 }
 
 fn main() {
+    if let Some(job) = std::env::var_os(GENERATE_ENV) {
+        let job = job.to_string_lossy().into_owned();
+        let done = job.split_once('=').and_then(|(name, path)| {
+            let case = ALL.iter().find(|c| c.name == name)?;
+            Some(write_log(Path::new(path), *case))
+        });
+        match done {
+            Some(Ok(_)) => std::process::exit(0),
+            Some(Err(e)) => {
+                eprintln!("error: {job}: {e}");
+                std::process::exit(1)
+            }
+            None => {
+                eprintln!("error: {GENERATE_ENV}={job}: expected <case>=<path>");
+                std::process::exit(2)
+            }
+        }
+    }
     let mut cases = Vec::new();
     let mut runs = 1u32;
     let mut with_python = true;

@@ -2,14 +2,18 @@
 //! shift), and the comparison of estimates with them.
 //!
 //! Format: header `sample_time,species,value,unit`, optional `result_time`
-//! column; timestamps as in the log (ISO 8601 with offset, or epoch
-//! seconds). Units are concentration units of `docs/config.md`.
+//! column; timestamps ISO 8601 with offset, or epoch seconds, or — when the
+//! plant's `[log] timezone` is set — ISO 8601 without offset, read in that
+//! zone (a local time skipped or repeated by a daylight-saving change is
+//! refused: a lab row has no order to resolve it by; write the offset).
+//! Units are concentration units of `docs/config.md`.
 
 use std::fmt;
 use std::path::{Path, PathBuf};
 
 use crate::plant::Plant;
 use crate::units;
+use crate::zone::{Local, Zone};
 
 /// One analysed value.
 #[derive(Clone, Debug, PartialEq)]
@@ -51,7 +55,30 @@ impl std::error::Error for LabError {}
 /// Parse a timestamp: epoch seconds (decimals allowed) or RFC 3339 with
 /// offset. Returns ms since the Unix epoch.
 pub fn parse_time(text: &str) -> Result<i64, String> {
+    parse_time_in(text, None)
+}
+
+/// As [`parse_time`], and with `zone` also ISO 8601 without offset, as
+/// local time in that zone.
+pub fn parse_time_in(text: &str, zone: Option<&Zone>) -> Result<i64, String> {
     let t = text.trim();
+    if let Some(zone) = zone {
+        if let Ok((local, None)) = crate::log::time::parse_iso_local(t.as_bytes()) {
+            return match zone.resolve(local) {
+                Local::Single(ms) => Ok(ms),
+                Local::Skipped => Err(format!(
+                    "{t:?} does not exist in {} (clocks set forward); write the offset",
+                    zone.label()
+                )),
+                Local::Repeated { .. } => Err(format!(
+                    "{t:?} occurs twice in {} (clocks set back); write the offset, e.g. \
+                     {}",
+                    zone.label(),
+                    "2026-10-25T02:30:00+02:00 or 2026-10-25T02:30:00+01:00"
+                )),
+            };
+        }
+    }
     if let Ok(secs) = t.parse::<f64>() {
         if secs.is_finite() && secs.abs() < 1e13 {
             return Ok((secs * 1000.0).round() as i64);
@@ -63,7 +90,12 @@ pub fn parse_time(text: &str) -> Result<i64, String> {
         .map_err(|_| {
             format!(
                 "not a timestamp: {t:?} (expected ISO 8601 with offset, e.g. \
-                 2026-03-01T06:00:00+01:00, or epoch seconds)"
+                 2026-03-01T06:00:00+01:00, or epoch seconds{})",
+                if zone.is_some() {
+                    ", or ISO 8601 local time in [log] timezone"
+                } else {
+                    "; local times need [log] timezone"
+                }
             )
         })
 }
@@ -108,6 +140,7 @@ pub fn load(path: &Path, plant: &Plant) -> Result<Vec<LabResult>, LabError> {
         need("unit")?,
     );
     let c_result = col("result_time");
+    let zone = plant.log.timezone.as_ref();
     let names: Vec<&str> = plant.species.iter().map(|s| s.name.as_str()).collect();
     let mut out = Vec::new();
     for (i, rec) in rdr.records().enumerate() {
@@ -122,9 +155,9 @@ pub fn load(path: &Path, plant: &Plant) -> Result<Vec<LabResult>, LabError> {
                 .ok_or_else(|| err(Some(line), format!("{name} is empty")))
         };
         let sample_time =
-            parse_time(field(c_time, "sample_time")?).map_err(|m| err(Some(line), m))?;
+            parse_time_in(field(c_time, "sample_time")?, zone).map_err(|m| err(Some(line), m))?;
         let result_time = match c_result.and_then(|c| rec.get(c)).filter(|s| !s.is_empty()) {
-            Some(s) => Some(parse_time(s).map_err(|m| err(Some(line), m))?),
+            Some(s) => Some(parse_time_in(s, zone).map_err(|m| err(Some(line), m))?),
             None => None,
         };
         if let Some(r) = result_time {
@@ -264,6 +297,28 @@ mod tests {
         assert_eq!(parse_time("2026-03-01T05:00:00Z"), Ok(1_772_341_200_000));
         assert_eq!(parse_time("1772341200.5"), Ok(1_772_341_200_500));
         assert!(parse_time("2026-03-01 06:00").is_err());
+    }
+
+    #[test]
+    fn local_times_in_the_log_zone() {
+        // CET = UTC+1 on 2026-03-01 (EU rule, common practice): 06:00 local
+        // = 05:00Z = 1772341200 s.
+        let z = Zone::from_name("Europe/Vienna").unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(
+            parse_time_in("2026-03-01 06:00", Some(&z)),
+            Ok(1_772_341_200_000)
+        );
+        // An offset still wins over the zone.
+        assert_eq!(
+            parse_time_in("2026-03-01T05:00:00Z", Some(&z)),
+            Ok(1_772_341_200_000)
+        );
+        let e = parse_time_in("2026-03-29 02:30", Some(&z)).unwrap_err();
+        assert!(e.contains("does not exist in Europe/Vienna"), "{e}");
+        let e = parse_time_in("2026-10-25 02:30", Some(&z)).unwrap_err();
+        assert!(e.contains("occurs twice"), "{e}");
+        let e = parse_time("2026-03-01 06:00").unwrap_err();
+        assert!(e.contains("[log] timezone"), "{e}");
     }
 
     #[test]

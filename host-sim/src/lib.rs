@@ -30,3 +30,4 @@ pub mod text;
 pub mod to_kernel;
 pub mod units;
 pub mod verify;
+pub mod zone;

@@ -346,14 +346,43 @@ pub enum LogFormat {
 
 /// Timestamp notation.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
-#[serde(rename_all = "lowercase")]
+#[serde(rename_all = "snake_case")]
 pub enum TimeFormat {
     /// Detect from the first data row.
     Auto,
-    /// ISO 8601 / RFC 3339 with offset (`2026-03-01T06:00:00+01:00`, `…Z`).
+    /// ISO 8601 / RFC 3339 (`2026-03-01T06:00:00+01:00`, `…Z`; without an
+    /// offset only with [`LogOptions::timezone`]).
     Iso8601,
     /// Seconds since 1970-01-01T00:00:00Z, decimals allowed.
     Epoch,
+    /// Milliseconds since 1970-01-01T00:00:00Z.
+    EpochMs,
+    /// Microseconds since 1970-01-01T00:00:00Z.
+    EpochUs,
+    /// The strftime-like pattern [`LogOptions::time_pattern`].
+    Pattern,
+}
+
+/// Field delimiter of the log's CSV.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Delimiter {
+    /// Detected from the header and the first rows.
+    Auto,
+    /// This byte (`,` `;` tab `|`).
+    Byte(u8),
+}
+
+/// Decimal separator of the log's numbers.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Decimal {
+    /// Detected from the first rows (a comma only with a delimiter other
+    /// than `,`).
+    Auto,
+    /// `12.5`.
+    Point,
+    /// `12,5`.
+    Comma,
 }
 
 /// Log options.
@@ -363,12 +392,51 @@ pub struct LogOptions {
     pub format: LogFormat,
     /// Timestamp notation.
     pub time: TimeFormat,
-    /// Wide format: timestamp column name (`None`: the first column).
+    /// [`TimeFormat::Pattern`]: the strftime-like pattern (checked at load).
+    pub time_pattern: Option<String>,
+    /// Zone of naive (offset-less) timestamps; `None`: they are refused.
+    pub timezone: Option<crate::zone::Zone>,
+    /// Zone of report times: the log's zone ([`Self::timezone`], else UTC),
+    /// or UTC on request.
+    pub output_zone: crate::zone::Zone,
+    /// Timestamp column name (`None`: found by name, else the first column
+    /// of a wide log).
     pub time_column: Option<String>,
+    /// Long format: tag column name (`None`: the default names).
+    pub tag_column: Option<String>,
+    /// Long format: value column name (`None`: the default names).
+    pub value_column: Option<String>,
+    /// Long format: quality column name (`None`: the default names).
+    pub quality_column: Option<String>,
+    /// Field delimiter.
+    pub delimiter: Delimiter,
+    /// Decimal separator.
+    pub decimal: Decimal,
     /// Default maximum age, ms.
     pub max_age_ms: u64,
     /// What an empty (or NaN, or non-numeric) value cell means.
     pub empty_cells: EmptyCells,
+}
+
+impl Default for LogOptions {
+    /// The options of a plant without `[log]`.
+    fn default() -> Self {
+        Self {
+            format: LogFormat::Auto,
+            time: TimeFormat::Auto,
+            time_pattern: None,
+            timezone: None,
+            output_zone: crate::zone::Zone::Utc,
+            time_column: None,
+            tag_column: None,
+            value_column: None,
+            quality_column: None,
+            delimiter: Delimiter::Auto,
+            decimal: Decimal::Auto,
+            max_age_ms: 600_000,
+            empty_cells: EmptyCells::Skip,
+        }
+    }
 }
 
 /// What an empty value cell of a wide log means.

@@ -92,8 +92,9 @@ pub enum ReplayError {
         /// What is wrong, with the range in SI.
         message: String,
     },
-    /// The log holds no usable data.
-    EmptyLog(PathBuf),
+    /// The log holds no usable data: the file and why
+    /// ([`crate::log::LogStats::why_empty`]).
+    EmptyLog(PathBuf, String),
     /// The plant and its log disagree so that nothing useful can follow
     /// ([`checks`]).
     Check {
@@ -124,9 +125,9 @@ impl fmt::Display for ReplayError {
             ReplayError::Conditioning { path, tag, message } => {
                 write!(f, "{}: [tags.\"{tag}\"]: {message}", path.display())
             }
-            ReplayError::EmptyLog(p) => write!(
+            ReplayError::EmptyLog(p, why) => write!(
                 f,
-                "{}: the log holds no valid timestamped data to replay",
+                "{}: the log holds no valid timestamped data to replay: {why}",
                 p.display()
             ),
             ReplayError::Check { path, message } => write!(f, "{}: {message}", path.display()),
@@ -243,10 +244,14 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
         None => Vec::new(),
     };
     let mut reader = LogReader::open(req.log, &plant.log, &plant.tags)?;
-    let empty = || ReplayError::EmptyLog(req.log.to_path_buf());
-    let t0 = reader.first_time()?.ok_or_else(empty)?;
+    let empty = |r: &LogReader| ReplayError::EmptyLog(req.log.to_path_buf(), r.stats().why_empty());
+    let Some(t0) = reader.first_time()? else {
+        return Err(empty(&reader));
+    };
     let mut sources = Sources::new(plant);
-    let first = reader.sample(t0)?.ok_or_else(empty)?;
+    let Some(first) = reader.sample(t0)? else {
+        return Err(empty(&reader));
+    };
     // Initial temperature: configured, or the signal's first value.
     let t_init = plant.initial.temperature.unwrap_or_else(|| {
         let t = sources.temperature(first);
@@ -343,7 +348,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
                 if self.record.ticks % 20_000 == 0 {
                     b.set_message(format!(
                         "plant time {} ({} ticks)",
-                        iso(t),
+                        self.req.plant.log.output_zone.iso(t),
                         self.record.ticks
                     ));
                     b.tick();
@@ -469,7 +474,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
                 .reseeds
                 .iter()
                 .take(record::KEEP_FIRST)
-                .map(|t| iso(*t))
+                .map(|t| self.req.plant.log.output_zone.iso(*t))
                 .collect(),
             lab: self.labs.tally.clone(),
             analysers: self.labs.analyser_tally.clone(),
@@ -504,7 +509,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
                 .iter()
                 .map(|(span, a)| ClosureAlarmOut {
                     alarm: a.message(),
-                    window: Window::from(span),
+                    window: Window::new(span, &self.req.plant.log.output_zone),
                 })
                 .collect(),
         })
@@ -518,13 +523,14 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
         wall: f64,
     ) -> Summary {
         let plant = self.req.plant;
+        let zone = &plant.log.output_zone;
         let corrected = self.main.observer().is_some();
         let species = |i: usize| plant.species[i].name.clone();
         let agree = |open: &crate::lab::Comparison, corr: &crate::lab::Comparison, i: usize| {
             SpeciesAgreement {
                 species: species(i),
-                open_loop: AgreementOut::from(&open.results()[i]),
-                corrected: corrected.then(|| AgreementOut::from(&corr.results()[i])),
+                open_loop: AgreementOut::new(&open.results()[i], zone),
+                corrected: corrected.then(|| AgreementOut::new(&corr.results()[i], zone)),
             }
         };
         let est = self.main.estimate();
@@ -569,8 +575,9 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
                 (true, false, false) => "corrected by level and analysers",
             },
             tick_ms: plant.tick_ms,
-            start: iso(self.t0),
-            end: iso(t_end),
+            time_zone: zone.label().to_string(),
+            start: zone.iso(self.t0),
+            end: zone.iso(t_end),
             ticks: self.record.ticks,
             wall_seconds: wall,
             log_stats: LogOut {
@@ -584,7 +591,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
                 .into_iter()
                 .map(|(k, v)| (k.to_string(), v))
                 .collect(),
-            inputs: inputs_out(&self.record),
+            inputs: inputs_out(&self.record, zone),
             open_loop_level_vs_measured: self.level_error.out(),
             estimator: self.estimator_out(),
             meters: self.meters_out(),

@@ -5,7 +5,8 @@
 pub const CAUTION: &str = "Estimates are advisory: validate them against lab results, never use \
 them as the only input to a safety function, and follow site procedures and local codes.";
 
-/// Format ms since the Unix epoch as ISO 8601 UTC.
+/// Format ms since the Unix epoch as ISO 8601 UTC (reports in the log's
+/// zone use [`crate::zone::Zone::iso`], which gives exactly this in UTC).
 pub fn iso(ms: i64) -> String {
     chrono::DateTime::from_timestamp_millis(ms)
         .map(|d| d.format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string())

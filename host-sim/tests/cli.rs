@@ -902,3 +902,129 @@ fn demo_writes_everything_into_its_folder() {
     assert!(header.iter().any(|h| h.starts_with("bias_")), "{header:?}");
     assert!(assert_shortest(&out.join("report"), true) > 0);
 }
+
+// ------------------------------------------------- historian dialects
+
+/// A plant reading only `FI-1` (in and out), for the dialect logs of
+/// `fixtures/historian/`; `log` is its `[log]` section.
+fn dialect_config(log: &str) -> String {
+    format!(
+        r#"[plant]
+name = "Dialect tank D-1"
+tick = "10 s"
+scalar = "f64"
+
+[vessel]
+shape = "vertical-cylinder"
+diameter = {{ value = 1.2, unit = "m" }}
+height = {{ value = 2.5, unit = "m" }}
+
+[[species]]
+name = "A"
+
+[[inlet]]
+name = "feed"
+flow = {{ tag = "FI-1", unit = "m3/h" }}
+feed = {{ A = {{ value = 100, unit = "mol/m3" }} }}
+
+[[outlet]]
+name = "drain"
+kind = "measured"
+flow = {{ tag = "FI-1", unit = "m3/h" }}
+
+[temperature]
+value = 20
+unit = "degC"
+
+[initial]
+volume = {{ value = 2.0, unit = "m3" }}
+
+[log]
+# The dialect logs are sparse (points up to 30 min apart): fresh values
+# must last that long, or the replay says its data are too thin (exit 3).
+max_age = "1 h"
+{log}
+"#
+    )
+}
+
+fn historian(name: &str) -> PathBuf {
+    root().join("fixtures/historian").join(name)
+}
+
+#[test]
+fn local_time_log_reports_in_its_zone_or_utc() {
+    // eu-autumn-semicolon.csv starts at 2026-10-25 01:30 local, CEST =
+    // UTC+2 (EU rule, common practice), i.e. 2026-10-24T23:30Z, and crosses
+    // the end of summer time (see fixtures/historian/README.md).
+    let dir = out_dir("dialect-autumn");
+    std::fs::create_dir_all(&dir).expect("mkdir");
+    let cfg = dir.join("plant.toml");
+    std::fs::write(&cfg, dialect_config("timezone = \"Europe/Vienna\"")).expect("write");
+    let out = dir.join("local");
+    replay(&cfg, &historian("eu-autumn-semicolon.csv"), &out);
+    let s = summary(&out);
+    assert_eq!(s["time_zone"], "Europe/Vienna");
+    assert_eq!(s["start"], "2026-10-25T01:30:00.000+02:00");
+    // The last row, 03:00 CET (UTC+1) = 02:00Z, is within the span.
+    let end = s["end"].as_str().expect("end");
+    assert!(
+        end.starts_with("2026-10-25T03:00") && end.ends_with("+01:00"),
+        "{end}"
+    );
+    assert_eq!(s["log_stats"]["dst_repeated"]["total"], 4);
+    assert_eq!(s["log_stats"]["dst_repeated_later"], 2);
+    assert_eq!(s["log_stats"]["delimiter"], ";");
+    assert_eq!(s["log_stats"]["decimal"], "comma");
+
+    std::fs::write(
+        &cfg,
+        dialect_config("timezone = \"Europe/Vienna\"\nreport_times = \"utc\""),
+    )
+    .expect("write");
+    let out = dir.join("utc");
+    replay(&cfg, &historian("eu-autumn-semicolon.csv"), &out);
+    let s = summary(&out);
+    assert_eq!(s["time_zone"], "UTC");
+    assert_eq!(s["start"], "2026-10-24T23:30:00.000Z");
+}
+
+#[test]
+fn empty_log_error_names_the_cause_and_the_key() {
+    // us-dates.csv without time_format: no timestamp is readable.
+    let dir = out_dir("dialect-us");
+    std::fs::create_dir_all(&dir).expect("mkdir");
+    let cfg = dir.join("plant.toml");
+    std::fs::write(&cfg, dialect_config("")).expect("write");
+    let o = holdup(&[
+        "replay",
+        "--config",
+        cfg.to_str().expect("utf-8 path"),
+        "--log",
+        historian("us-dates.csv").to_str().expect("utf-8 path"),
+        "--out",
+        dir.join("out").to_str().expect("utf-8 path"),
+        "--quiet",
+    ]);
+    assert!(!o.status.success());
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains(
+            "the log holds no valid timestamped data to replay: 3 of 3 rows with an \
+             unreadable timestamp (first at line 2: '03/01/2026 11:30:00 PM'"
+        ) && err.contains("[log] time_format"),
+        "{err}"
+    );
+    // With the pattern and the zone it replays: 2026-03-01 23:30 CST (UTC−6,
+    // US rule, from memory) = 2026-03-02T05:30Z.
+    std::fs::write(
+        &cfg,
+        dialect_config(
+            "time_format = \"%m/%d/%Y %I:%M:%S %p\"\ntimezone = \"America/Chicago\"\nreport_times = \"utc\"",
+        ),
+    )
+    .expect("write");
+    let out = dir.join("ok");
+    replay(&cfg, &historian("us-dates.csv"), &out);
+    assert_eq!(summary(&out)["start"], "2026-03-02T05:30:00.000Z");
+}

@@ -5,10 +5,25 @@ use toml::de::DeValue;
 
 use super::table::{list, section, type_name, Tbl, R};
 use crate::plant::{
-    Conditioning, EmptyCells, Interpolation, LogFormat, LogOptions, TagOptions, TimeFormat,
+    Conditioning, Decimal, Delimiter, EmptyCells, Interpolation, LogFormat, LogOptions, TagOptions,
+    TimeFormat,
 };
+use crate::zone::Zone;
 
-const LOG_KEYS: &[&str] = &["format", "time", "time_column", "max_age"];
+pub(super) const LOG_KEYS: &[&str] = &[
+    "format",
+    "time",
+    "time_format",
+    "timezone",
+    "report_times",
+    "time_column",
+    "tag_column",
+    "value_column",
+    "quality_column",
+    "delimiter",
+    "decimal",
+    "max_age",
+];
 const TAG_KEYS: &[&str] = &[
     "interpolation",
     "max_age",
@@ -28,13 +43,19 @@ const DEFAULT_MAX_AGE_MS: u64 = 600_000;
 pub(super) fn read_log(root: &Tbl<'_>) -> R<LogOptions> {
     match section(root, "log")? {
         None => Ok(LogOptions {
-            format: LogFormat::Auto,
-            time: TimeFormat::Auto,
-            time_column: None,
             max_age_ms: DEFAULT_MAX_AGE_MS,
-            empty_cells: EmptyCells::Skip,
+            ..LogOptions::default()
         }),
         Some(l) => read_options(&l),
+    }
+}
+
+/// A column-name key: a non-empty string, or absent.
+fn column_key(t: &Tbl<'_>, key: &str) -> R<Option<(String, usize)>> {
+    match t.string(key)? {
+        None => Ok(None),
+        Some((s, at)) if s.trim().is_empty() => Err(t.err(at, key, "must not be empty")),
+        Some((s, at)) => Ok(Some((s.trim().to_string(), at))),
     }
 }
 
@@ -51,31 +72,93 @@ fn read_options(t: &Tbl<'_>) -> R<LogOptions> {
             ],
         )?
         .map_or(LogFormat::Auto, |(f, _)| f);
-    let time = t
+    let mut time = t
         .choice(
             "time",
             &[
                 ("auto", TimeFormat::Auto),
                 ("iso8601", TimeFormat::Iso8601),
                 ("epoch", TimeFormat::Epoch),
+                ("epoch_s", TimeFormat::Epoch),
+                ("epoch_ms", TimeFormat::EpochMs),
+                ("epoch_us", TimeFormat::EpochUs),
             ],
         )?
         .map_or(TimeFormat::Auto, |(f, _)| f);
-    let time_column = match t.string("time_column")? {
+    let timezone = match t.string("timezone")? {
+        None => None,
+        Some((s, at)) => Some(Zone::from_name(s).map_err(|m| t.err(at, "timezone", m))?),
+    };
+    let time_pattern = match t.string("time_format")? {
         None => None,
         Some((s, at)) => {
-            if s.trim().is_empty() {
-                return Err(t.err(at, "time_column", "must not be empty"));
-            }
-            if format == LogFormat::Long {
+            if time != TimeFormat::Auto {
                 return Err(t.err(
                     at,
-                    "time_column",
-                    "only used by format \"wide\" (or \"auto\" detecting a wide log)",
+                    "time_format",
+                    "a pattern replaces `time`; remove `time` (or set it to \"auto\")",
                 ));
             }
+            let with_offset = check_pattern(s).map_err(|m| t.err(at, "time_format", m))?;
+            if !with_offset && timezone.is_none() {
+                return Err(t.err(
+                    at,
+                    "time_format",
+                    "the pattern has no offset (%z or %:z), so its times are local: \
+                     set `timezone` too (an IANA name such as \"Europe/Vienna\")",
+                ));
+            }
+            time = TimeFormat::Pattern;
             Some(s.to_string())
         }
+    };
+    let output_zone = match t.choice("report_times", &[("log", false), ("utc", true)])? {
+        Some((true, _)) => Zone::Utc,
+        _ => timezone.unwrap_or(Zone::Utc),
+    };
+    let time_column = column_key(t, "time_column")?.map(|(s, _)| s);
+    let long_only = |key: &str| -> R<Option<String>> {
+        match column_key(t, key)? {
+            Some((_, at)) if format == LogFormat::Wide => Err(t.err(
+                at,
+                key,
+                "only used by format \"long\" (or \"auto\" detecting a long log)",
+            )),
+            other => Ok(other.map(|(s, _)| s)),
+        }
+    };
+    let tag_column = long_only("tag_column")?;
+    let value_column = long_only("value_column")?;
+    let quality_column = long_only("quality_column")?;
+    let delimiter = t
+        .choice(
+            "delimiter",
+            &[
+                ("auto", Delimiter::Auto),
+                (",", Delimiter::Byte(b',')),
+                (";", Delimiter::Byte(b';')),
+                ("tab", Delimiter::Byte(b'\t')),
+                ("|", Delimiter::Byte(b'|')),
+            ],
+        )?
+        .map_or(Delimiter::Auto, |(d, _)| d);
+    let decimal = match t.choice(
+        "decimal",
+        &[
+            ("auto", Decimal::Auto),
+            ("point", Decimal::Point),
+            ("comma", Decimal::Comma),
+        ],
+    )? {
+        None => Decimal::Auto,
+        Some((Decimal::Comma, at)) if delimiter == Delimiter::Byte(b',') => {
+            return Err(t.err(
+                at,
+                "decimal",
+                "a decimal comma needs a delimiter other than \",\" (set `delimiter`)",
+            ))
+        }
+        Some((d, _)) => d,
     };
     let max_age_ms = match t.duration("max_age")? {
         None => DEFAULT_MAX_AGE_MS,
@@ -85,10 +168,53 @@ fn read_options(t: &Tbl<'_>) -> R<LogOptions> {
     Ok(LogOptions {
         format,
         time,
+        time_pattern,
+        timezone,
+        output_zone,
         time_column,
+        tag_column,
+        value_column,
+        quality_column,
+        delimiter,
+        decimal,
         max_age_ms,
         empty_cells: EmptyCells::Skip,
     })
+}
+
+/// Check a `time_format` pattern: it must write a date-time that it reads
+/// back (year, month, day, hour and minute at least). Returns whether it
+/// carries an offset (`%z`, `%:z`, …).
+fn check_pattern(pattern: &str) -> Result<bool, String> {
+    use chrono::format::{Item, StrftimeItems};
+    use std::fmt::Write;
+    if StrftimeItems::new(pattern).any(|i| matches!(i, Item::Error)) {
+        return Err(format!(
+            "\"{pattern}\" is not a valid pattern (strftime-like: %Y %m %d %H %M %S %I %p %z …)"
+        ));
+    }
+    // 2026-03-29T14:05:00+01:00: a sample written with the pattern.
+    let sample = chrono::FixedOffset::east_opt(3600)
+        .and_then(|o| {
+            chrono::NaiveDate::from_ymd_opt(2026, 3, 29)
+                .and_then(|d| d.and_hms_opt(14, 5, 0))
+                .and_then(|n| n.and_local_timezone(o).single())
+        })
+        .ok_or("internal: sample date")?;
+    let mut text = String::new();
+    if write!(text, "{}", sample.format(pattern)).is_err() {
+        return Err(format!("\"{pattern}\" cannot write a date-time"));
+    }
+    if chrono::DateTime::parse_from_str(&text, pattern).ok() == Some(sample) {
+        return Ok(true);
+    }
+    if chrono::NaiveDateTime::parse_from_str(&text, pattern).ok() == Some(sample.naive_local()) {
+        return Ok(false);
+    }
+    Err(format!(
+        "\"{pattern}\" cannot read a date-time back (it wrote \"{text}\"); it needs the \
+         year, month, day, hour and minute, e.g. \"%d.%m.%Y %H:%M:%S\""
+    ))
 }
 
 /// The options of every tag in `used` (distinct tags in first-use order,

@@ -341,6 +341,7 @@ fn minimal_config_gets_the_defaults() {
             time_column: None,
             max_age_ms: 600_000,
             empty_cells: EmptyCells::Skip,
+            ..LogOptions::default()
         }
     );
 }

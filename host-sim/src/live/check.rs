@@ -26,6 +26,7 @@ pub fn replay_plant(plant: &Plant) -> Plant {
         time_column: Some(TIME_COLUMN.to_string()),
         max_age_ms: plant.log.max_age_ms,
         empty_cells: EmptyCells::NoReading,
+        ..LogOptions::default()
     };
     for t in &mut p.tags {
         t.interpolation = Interpolation::Hold;

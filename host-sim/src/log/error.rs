@@ -72,6 +72,8 @@ pub enum LogError {
         line: u64,
         /// The tag.
         tag: String,
+        /// Why it may be missing (empty: no idea).
+        hint: String,
         /// The header's columns.
         available: Vec<String>,
     },
@@ -81,8 +83,10 @@ pub enum LogError {
         path: String,
         /// Line of the header.
         line: u64,
-        /// The column (`tag` or `value`).
-        column: &'static str,
+        /// The column name(s) looked for.
+        column: String,
+        /// The `[log]` key naming it.
+        key: &'static str,
         /// The header's columns.
         available: Vec<String>,
     },
@@ -171,14 +175,15 @@ impl fmt::Display for LogError {
                 path,
                 line,
                 tag,
+                hint,
                 available,
             } => {
                 write!(
                     f,
                     "{path}:{line}: tag '{tag}' is not a column of the header"
                 )?;
-                if let Some(near) = available.iter().find(|c| c.eq_ignore_ascii_case(tag)) {
-                    write!(f, " (did you mean '{near}'? tags are case-sensitive)")?;
+                if !hint.is_empty() {
+                    write!(f, " ({hint})")?;
                 }
                 write!(f, "; columns are {}", list(available))
             }
@@ -186,10 +191,12 @@ impl fmt::Display for LogError {
                 path,
                 line,
                 column,
+                key,
                 available,
             } => write!(
                 f,
-                "{path}:{line}: long format needs a '{column}' column; columns are {}",
+                "{path}:{line}: long format needs a '{column}' column (or set [log] {key}); \
+                 columns are {}",
                 list(available)
             ),
             LogError::DuplicateColumn { path, line, column } => write!(
@@ -207,7 +214,9 @@ impl fmt::Display for LogError {
             } => write!(
                 f,
                 "{path}:{line}: column '{column}': timestamp '{text}' has no offset; \
-                 an offset is required (e.g. 2026-03-01T06:00:00+01:00 or 2026-03-01T05:00:00Z)"
+                 set [log] timezone to the log's IANA zone (e.g. \"Europe/Vienna\") to read \
+                 local times, or log with an offset (2026-03-01T06:00:00+01:00, \
+                 2026-03-01T05:00:00Z)"
             ),
             LogError::SampleBackwards { path, t, previous } => write!(
                 f,

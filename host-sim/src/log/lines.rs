@@ -1,4 +1,5 @@
-//! Bounded line reader and comma splitter for the log's CSV.
+//! Bounded line reader and field splitter for the log's CSV (delimiter `,`
+//! by default; `;`, tab or `|` when detected or configured).
 //!
 //! Written for constant memory: a line longer than [`MAX_LINE`] bytes is not
 //! kept (it is skipped to its end and reported), so a file without newlines
@@ -8,6 +9,7 @@
 //! final line without terminator are accepted; a UTF-8 byte-order mark at
 //! the start of the file is skipped.
 
+use std::collections::VecDeque;
 use std::io::{self, BufRead, BufReader, Read};
 
 /// Longest accepted line, bytes (1 MiB: about 50 000 columns of 20 characters).
@@ -30,6 +32,8 @@ pub struct LineReader {
     buf: Vec<u8>,
     line_no: u64,
     at_start: bool,
+    /// Lines read ahead by [`LineReader::peek`], handed out again in order.
+    ahead: VecDeque<(Line, Vec<u8>)>,
 }
 
 impl LineReader {
@@ -40,7 +44,36 @@ impl LineReader {
             buf: Vec::new(),
             line_no: 0,
             at_start: true,
+            ahead: VecDeque::new(),
         }
+    }
+
+    /// Read ahead up to `n` more non-blank text lines (fewer at the end of
+    /// the file) without consuming them: [`LineReader::next_line`] hands
+    /// them out again. Returns the bytes of every text line read ahead so
+    /// far (blank ones excluded). Bounded by `n` lines of at most
+    /// [`MAX_LINE`] bytes.
+    pub fn peek(&mut self, n: usize) -> io::Result<Vec<Vec<u8>>> {
+        let have = |ahead: &VecDeque<(Line, Vec<u8>)>| {
+            ahead
+                .iter()
+                .filter(|(l, b)| matches!(l, Line::Text(_)) && !is_blank(b))
+                .count()
+        };
+        while have(&self.ahead) < n {
+            let line = self.read_line()?;
+            let end = line == Line::End;
+            self.ahead.push_back((line, std::mem::take(&mut self.buf)));
+            if end {
+                break;
+            }
+        }
+        Ok(self
+            .ahead
+            .iter()
+            .filter(|(l, b)| matches!(l, Line::Text(_)) && !is_blank(b))
+            .map(|(_, b)| b.clone())
+            .collect())
     }
 
     /// The bytes of the last [`Line::Text`].
@@ -50,6 +83,17 @@ impl LineReader {
 
     /// Read the next line.
     pub fn next_line(&mut self) -> io::Result<Line> {
+        if let Some((line, bytes)) = self.ahead.pop_front() {
+            if line == Line::End {
+                self.ahead.push_front((Line::End, Vec::new()));
+            }
+            self.buf = bytes;
+            return Ok(line);
+        }
+        self.read_line()
+    }
+
+    fn read_line(&mut self) -> io::Result<Line> {
         self.buf.clear();
         let mut too_long = false;
         let mut any = false;
@@ -118,14 +162,29 @@ pub enum SplitError {
 }
 
 /// The fields of one line, reusing their buffers from line to line.
-#[derive(Default)]
 pub struct Fields {
     bytes: Vec<u8>,
     ends: Vec<usize>,
+    delimiter: u8,
+}
+
+impl Default for Fields {
+    fn default() -> Self {
+        Self::with_delimiter(b',')
+    }
 }
 
 impl Fields {
-    /// Split `line` at commas (quotes as described in the module doc).
+    /// Fields split at `delimiter`.
+    pub fn with_delimiter(delimiter: u8) -> Self {
+        Self {
+            bytes: Vec::new(),
+            ends: Vec::new(),
+            delimiter,
+        }
+    }
+
+    /// Split `line` at the delimiter (quotes as described in the module doc).
     pub fn split(&mut self, line: &[u8]) -> Result<(), SplitError> {
         self.bytes.clear();
         self.ends.clear();
@@ -134,7 +193,9 @@ impl Fields {
             // Leading blanks before a quote are allowed; otherwise kept and
             // trimmed by the callers.
             let mut j = i;
-            while line.get(j).is_some_and(|&b| b == b' ' || b == b'\t') {
+            let delim = self.delimiter;
+            let blank = |b: u8| (b == b' ' || b == b'\t') && b != delim;
+            while line.get(j).is_some_and(|&b| blank(b)) {
                 j += 1;
             }
             if line.get(j) == Some(&b'"') {
@@ -156,18 +217,18 @@ impl Fields {
                         }
                     }
                 }
-                while line.get(j).is_some_and(|&b| b == b' ' || b == b'\t') {
+                while line.get(j).is_some_and(|&b| blank(b)) {
                     j += 1;
                 }
                 self.ends.push(self.bytes.len());
                 match line.get(j) {
                     None => return Ok(()),
-                    Some(b',') => i = j + 1,
+                    Some(&b) if b == delim => i = j + 1,
                     Some(_) => return Err(SplitError::TextAfterQuote),
                 }
             } else {
                 let rest = line.get(i..).unwrap_or_default();
-                match rest.iter().position(|&b| b == b',') {
+                match rest.iter().position(|&b| b == delim) {
                     Some(k) => {
                         self.bytes
                             .extend_from_slice(rest.get(..k).unwrap_or_default());
@@ -215,6 +276,37 @@ mod tests {
         Ok((0..f.len())
             .map(|i| String::from_utf8_lossy(f.get(i)).into_owned())
             .collect())
+    }
+
+    #[test]
+    fn splits_at_other_delimiters() {
+        // Same quoting rule (RFC 4180) with another delimiter byte.
+        let mut f = Fields::with_delimiter(b';');
+        f.split(br#"t;"12,5"; 3,0"#).unwrap();
+        assert_eq!(
+            (f.len(), f.get(1), f.get(2)),
+            (3, &b"12,5"[..], &b"3,0"[..])
+        );
+        let mut f = Fields::with_delimiter(b'\t');
+        f.split(b"a\t\tb").unwrap();
+        assert_eq!((f.len(), f.get(1), f.get(2)), (3, &b""[..], &b"b"[..]));
+    }
+
+    #[test]
+    fn peeked_lines_come_again() {
+        let mut r = LineReader::new(Box::new(io::Cursor::new(b"h\n\na\nb\n".to_vec())));
+        assert_eq!(
+            r.peek(5).unwrap(),
+            [b"h".to_vec(), b"a".to_vec(), b"b".to_vec()]
+        );
+        assert_eq!(r.next_line().unwrap(), Line::Text(1));
+        assert_eq!(r.line(), b"h");
+        assert_eq!(r.next_line().unwrap(), Line::Text(2));
+        assert_eq!(r.next_line().unwrap(), Line::Text(3));
+        assert_eq!(r.line(), b"a");
+        assert_eq!(r.next_line().unwrap(), Line::Text(4));
+        assert_eq!(r.next_line().unwrap(), Line::End);
+        assert_eq!(r.next_line().unwrap(), Line::End);
     }
 
     #[test]

@@ -7,17 +7,25 @@
 //!
 //! # Formats
 //!
-//! Comma-separated, a header row required (a UTF-8 byte-order mark and
+//! Delimited text with a header row required (a UTF-8 byte-order mark and
 //! `\r\n` line ends are accepted; fields may be quoted with `"`, a quoted
-//! field ends on its own line).
+//! field ends on its own line). The delimiter is `,` `;` tab or `|`
+//! ([`LogOptions::delimiter`]; detected from the header and the first
+//! [`DETECT_ROWS`] rows: the one giving the most fields, at least two, the
+//! same number on every row), and numbers use a decimal point or comma
+//! ([`LogOptions::decimal`]; a comma detected only with a delimiter other
+//! than `,`). Quoted numbers are numbers.
 //!
-//! - **Wide**: a timestamp column (named by [`LogOptions::time_column`],
-//!   matched exactly, then ignoring ASCII case; default the first column)
+//! - **Wide**: a timestamp column ([`LogOptions::time_column`], matched
+//!   exactly, then ignoring ASCII case; else the first of
+//!   [`TIME_NAMES`] present, ignoring case; else the first column)
 //!   and one column per tag, named exactly as the tag. Other columns are
 //!   ignored. Rows may be irregular in time.
-//! - **Long**: columns `time` (or `timestamp`, or the configured
-//!   `time_column`), `tag`, `value` and optionally `quality`, header names
-//!   matched ignoring ASCII case, in any order; other columns are ignored.
+//! - **Long**: timestamp, tag, value and optionally quality columns, named
+//!   by `time_column`, `tag_column`, `value_column`, `quality_column` or
+//!   found by the names of [`TIME_NAMES`], [`TAG_NAMES`],
+//!   [`VALUE_NAMES`], [`QUALITY_NAMES`] (ignoring ASCII
+//!   case), in any order; other columns are ignored.
 //!   One stored point per row, rows in time order; a tag appears only when
 //!   it was stored (exception-compressed). Tag values are matched exactly
 //!   (after trimming blanks); rows of other tags are counted and skipped.
@@ -26,15 +34,23 @@
 //!   standard this reader claims): ≥ 192 good, 64–191 uncertain, < 64 bad.
 //!   An empty quality cell is good; other text is treated as uncertain.
 //!   Bad points are rejected, uncertain ones used; both are counted.
-//! - **Auto** ([`LogFormat::Auto`]): long if the header has both a `tag` and
-//!   a `value` column, wide otherwise.
+//! - **Auto** ([`LogFormat::Auto`]): long if the header has both a tag and
+//!   a value column, wide otherwise.
 //!
-//! Timestamps are epoch seconds (decimals allowed) or ISO 8601 / RFC 3339
-//! with an offset (`2026-03-01T06:00:00+01:00`, `2026-03-01T05:00:00Z`,
-//! fractional seconds allowed); [`TimeFormat::Auto`] decides on the first
-//! data row whose timestamp is either. A date-time without an offset is an
-//! error ([`LogError::NoOffset`]): local times are ambiguous. Internally time
-//! is `i64` milliseconds since the Unix epoch.
+//! Timestamps are epoch seconds (decimals allowed), milliseconds or
+//! microseconds, ISO 8601 / RFC 3339 (`2026-03-01T06:00:00+01:00`,
+//! `2026-03-01T05:00:00Z`, fractional seconds allowed), or a strftime-like
+//! pattern ([`TimeFormat::Pattern`]). [`TimeFormat::Auto`] decides on the
+//! first readable timestamp: a number is seconds, milliseconds with 13
+//! digits and microseconds with 16 (a guess, reported in
+//! [`LogStats::time_unit_guessed`]) unless the column's name ends in `_s`,
+//! `_ms` or `_us`; text is ISO 8601. A stamp with an offset is read with
+//! it; one without is local time in [`LogOptions::timezone`] (without a
+//! zone: [`LogError::NoOffset`]). A local time in a skipped hour (clocks
+//! set forward) rejects its row ([`LogStats::dst_skipped`]); one in a
+//! repeated hour takes the first offset unless that would put it before
+//! the previous accepted row, then the second ([`LogStats::dst_repeated`]).
+//! Internally time is `i64` milliseconds since the Unix epoch.
 //!
 //! A value cell that is empty, `NaN`, infinite or not a number is a missing
 //! value of that tag at that row (counted). Every other value is stored as
@@ -85,6 +101,8 @@ pub mod time;
 mod order_tests;
 #[cfg(test)]
 mod tests;
+#[cfg(test)]
+mod tests_historian;
 
 use std::collections::VecDeque;
 use std::fmt;
@@ -92,18 +110,24 @@ use std::fs::File;
 use std::io::Read;
 use std::path::Path;
 
-use crate::plant::{EmptyCells, Interpolation, LogFormat, LogOptions, TagOptions, TimeFormat};
-use cells::{missing_detail, parse_quality, parse_value, Quality};
+use crate::plant::{
+    Decimal, Delimiter, EmptyCells, Interpolation, LogFormat, LogOptions, TagOptions, TimeFormat,
+};
+use crate::zone::{Local, Zone};
+use cells::{comma_number, missing_detail, parse_quality, parse_value, point_number, Quality};
 use error::shown;
 pub use error::LogError;
 use header::Layout;
+pub use header::{QUALITY_NAMES, TAG_NAMES, TIME_NAMES, VALUE_NAMES};
 use lines::{is_blank, Fields, Line, LineReader};
 use sorted::{Entry, Merged, Sorter, UNTIMED};
 pub use stats::{
     Fault, FaultList, LogStats, Order, OrderKind, StateTicks, TagStats, Window, WindowList,
     KEEP_FIRST,
 };
-use time::{looks_numeric, parse_epoch, parse_iso, TimeError};
+use time::{
+    integer_digits, looks_numeric, parse_epoch, parse_epoch_unit, parse_iso_local, TimeError,
+};
 
 /// Default flat-line age, ms (30 min).
 pub const DEFAULT_FLAT_LINE_MS: u64 = 30 * 60 * 1000;
@@ -233,6 +257,13 @@ pub struct LogReader {
     layout: Layout,
     time_col_name: String,
     time_format: TimeFormat,
+    /// Unit of numeric timestamps implied by the time column's name.
+    time_unit: Option<TimeFormat>,
+    /// [`TimeFormat::Pattern`]: the pattern, parsed once.
+    pattern: Option<Pattern>,
+    /// Zone of naive timestamps.
+    zone: Option<Zone>,
+    decimal_comma: bool,
     empty_cells: EmptyCells,
     flat_line_ms: i64,
     tags: Vec<TagState>,
@@ -301,9 +332,12 @@ impl LogReader {
         let order = scan.scan_order()?;
         let mut opts = opts.clone();
         opts.time = scan.time_format;
+        // The notation decided by the first pass (and how, if guessed).
+        let guessed = scan.stats.time_unit_guessed.clone();
         if order.kind == OrderKind::InOrder {
             let mut r = Self::from_reader(Box::new(open()?), &name, &opts, tags, flat_line_ms)?;
             r.stats.order = order;
+            r.stats.time_unit_guessed = guessed;
             return Ok(r);
         }
         // Not in time order: cut into sorted runs, then read the merge.
@@ -320,6 +354,7 @@ impl LogReader {
         let (merged, figures) = sorter.finish().map_err(temp_err)?;
         let mut r = Self::from_reader(Box::new(open()?), &name, &opts, tags, flat_line_ms)?;
         r.lines = Lines::Sorted(merged);
+        r.stats.time_unit_guessed = guessed;
         r.stats.order = Order {
             sort: Some(figures),
             ..order
@@ -393,13 +428,17 @@ impl LogReader {
         let time_col = match &self.layout {
             Layout::Wide { time_col, .. } | Layout::Long { time_col, .. } => *time_col,
         };
-        Ok(match self.parse_time(time_col) {
-            Ok(t) => Scanned::Line {
-                line,
-                t,
-                too_long: false,
-            },
-            Err(_) => untimed,
+        Ok(match self.row_instant(line, time_col)? {
+            Some(t) => {
+                // Row order resolves a repeated local hour, as when reading.
+                self.frontier = Some(self.frontier.map_or(t, |f| f.max(t)));
+                Scanned::Line {
+                    line,
+                    t,
+                    too_long: false,
+                }
+            }
+            None => untimed,
         })
     }
 
@@ -441,9 +480,29 @@ impl LogReader {
                 Line::Text(n) => break n,
             }
         };
-        let mut fields = Fields::default();
+        let header_bytes = lines.line().to_vec();
+        let ahead = lines
+            .peek(DETECT_ROWS)
+            .map_err(|e| read_err(header_line, e))?;
+        let (delimiter, delimiter_detected) = match opts.delimiter {
+            Delimiter::Byte(d) => (d, false),
+            Delimiter::Auto => (detect_delimiter(&header_bytes, &ahead), true),
+        };
+        let decimal = match opts.decimal {
+            Decimal::Auto => detect_decimal(delimiter, &ahead),
+            Decimal::Comma if delimiter == b',' => {
+                return Err(LogError::BadHeader {
+                    path,
+                    line: header_line,
+                    why: "[log] decimal = \"comma\" but the fields are separated by ','; \
+                          set [log] delimiter",
+                })
+            }
+            d => d,
+        };
+        let mut fields = Fields::with_delimiter(delimiter);
         fields
-            .split(lines.line())
+            .split(&header_bytes)
             .map_err(|e| LogError::BadHeader {
                 path: path.clone(),
                 line: header_line,
@@ -455,7 +514,12 @@ impl LogReader {
         let header: Vec<String> = (0..fields.len())
             .map(|i| String::from_utf8_lossy(fields.get(i)).into_owned())
             .collect();
-        let (layout, time_col) = header::layout(path.clone(), header_line, &header, opts, tags)?;
+        let decided = header::layout(path.clone(), header_line, &header, opts, tags, delimiter)?;
+        let (layout, time_col) = (decided.layout, decided.time_col);
+        let pattern = match (opts.time, &opts.time_pattern) {
+            (TimeFormat::Pattern, Some(p)) => Some(Pattern::new(p)),
+            _ => None,
+        };
         let states: Vec<TagState> = tags
             .iter()
             .map(|t| TagState {
@@ -476,12 +540,27 @@ impl LogReader {
                 LogFormat::Wide
             },
             time: opts.time,
+            time_unit_guessed: None,
+            timezone: opts.timezone.map(|z| z.label().to_string()),
+            report_zone: opts.output_zone,
+            delimiter: header::delimiter_key(delimiter),
+            delimiter_detected,
+            decimal: if decimal == Decimal::Comma {
+                Decimal::Comma
+            } else {
+                Decimal::Point
+            },
             flat_line_ms,
             lines: header_line,
             rows: 0,
             blank_lines: blank,
             rows_other_tags: 0,
+            other_tags_seen: Vec::new(),
+            first_other_tag_line: None,
             bad_time: FaultList::default(),
+            dst_skipped: FaultList::default(),
+            dst_repeated: FaultList::default(),
+            dst_repeated_later: 0,
             backwards: FaultList::default(),
             wrong_fields: FaultList::default(),
             malformed: FaultList::default(),
@@ -504,6 +583,10 @@ impl LogReader {
             layout,
             time_col_name,
             time_format: opts.time,
+            time_unit: decided.unit,
+            pattern,
+            zone: opts.timezone,
+            decimal_comma: decimal == Decimal::Comma,
             empty_cells: opts.empty_cells,
             flat_line_ms: i64::try_from(flat_line_ms).unwrap_or(i64::MAX),
             tags: states,
@@ -719,7 +802,7 @@ impl LogReader {
                 continue;
             };
             let cell = self.fields.get(col);
-            match parse_value(cell) {
+            match parse_value(cell, self.decimal_comma) {
                 Ok(v) => self.store(k, t, v, line)?,
                 Err(why) => {
                     if let Some(ts) = self.stats.tags.get_mut(k) {
@@ -758,7 +841,15 @@ impl LogReader {
             return Ok(());
         }
         let Some(&k) = index.get(self.fields.get(*tag_col)) else {
-            self.stats.rows_other_tags += 1;
+            let st = &mut self.stats;
+            st.rows_other_tags += 1;
+            st.first_other_tag_line.get_or_insert(line);
+            if st.other_tags_seen.len() < 10 {
+                let name = shown(self.fields.get(*tag_col));
+                if !st.other_tags_seen.contains(&name) {
+                    st.other_tags_seen.push(name);
+                }
+            }
             return Ok(());
         };
         let Some(t) = self.row_time(line, time_col)? else {
@@ -770,7 +861,7 @@ impl LogReader {
         let Some(ts) = self.stats.tags.get_mut(k) else {
             return Ok(());
         };
-        let value = parse_value(cell);
+        let value = parse_value(cell, self.decimal_comma);
         let raw = value.as_ref().ok().copied();
         let qtext = || shown(quality_col.map_or(&b""[..], |c| self.fields.get(c)));
         match quality {
@@ -801,56 +892,153 @@ impl LogReader {
         }
     }
 
-    /// The time in column `time_col` of the line just split, deciding the
-    /// time notation on the first readable timestamp.
-    fn parse_time(&mut self, time_col: usize) -> Result<i64, TimeError> {
-        let text = self.fields.get(time_col);
+    /// The instant in column `time_col` of the line just split, or `None`
+    /// when it cannot be read (counted); decides the time notation on the
+    /// first readable timestamp.
+    fn row_instant(&mut self, line: u64, time_col: usize) -> Result<Option<i64>, LogError> {
+        let raw = self.fields.get(time_col);
+        // A decimal comma in numeric timestamps too.
+        let comma;
+        let text = if self.decimal_comma && raw.contains(&b',') && !raw.contains(&b':') {
+            comma = raw
+                .iter()
+                .map(|&b| if b == b',' { b'.' } else { b })
+                .collect::<Vec<u8>>();
+            &comma[..]
+        } else {
+            raw
+        };
+        if self.time_format == TimeFormat::Auto {
+            if looks_numeric(text) {
+                let digits = integer_digits(text);
+                let (unit, why) = match self.time_unit {
+                    Some(u) => (
+                        u,
+                        format!(
+                            "{} from the column name '{}'",
+                            match u {
+                                TimeFormat::EpochMs => "milliseconds",
+                                TimeFormat::EpochUs => "microseconds",
+                                _ => "seconds",
+                            },
+                            self.time_col_name
+                        ),
+                    ),
+                    None => match digits {
+                        13 => (
+                            TimeFormat::EpochMs,
+                            format!("milliseconds from the 13-digit number of line {line}"),
+                        ),
+                        16 => (
+                            TimeFormat::EpochUs,
+                            format!("microseconds from the 16-digit number of line {line}"),
+                        ),
+                        _ => (TimeFormat::Epoch, String::new()),
+                    },
+                };
+                if !why.is_empty() {
+                    self.stats.time_unit_guessed = Some(why);
+                }
+                self.time_format = unit;
+            } else if parse_iso_local(text).is_ok() {
+                self.time_format = TimeFormat::Iso8601;
+            }
+        }
+        self.stats.time = self.time_format;
         let parsed = match self.time_format {
-            TimeFormat::Epoch => parse_epoch(text),
-            TimeFormat::Iso8601 => parse_iso(text),
-            TimeFormat::Auto => {
-                if looks_numeric(text) {
-                    self.time_format = TimeFormat::Epoch;
-                    parse_epoch(text)
-                } else {
-                    let r = parse_iso(text);
-                    if r.is_ok() {
-                        self.time_format = TimeFormat::Iso8601;
+            TimeFormat::Epoch => parse_epoch(text).map(Stamp::Utc),
+            TimeFormat::EpochMs => parse_epoch_unit(text, 1).map(Stamp::Utc),
+            TimeFormat::EpochUs => parse_epoch_unit(text, 1000).map(Stamp::Utc),
+            TimeFormat::Iso8601 | TimeFormat::Auto => {
+                parse_iso_local(text).and_then(|(ms, off)| match off {
+                    Some(off) => utc_in_range(ms - i64::from(off) * 60_000).map(Stamp::Utc),
+                    None => Ok(Stamp::Local(ms)),
+                })
+            }
+            TimeFormat::Pattern => match &self.pattern {
+                Some(p) => p.parse(text),
+                None => Err(TimeError::Invalid("no [log] time_format pattern")),
+            },
+        };
+        let t = match parsed {
+            Ok(Stamp::Utc(t)) => t,
+            Ok(Stamp::Local(local)) => {
+                let Some(zone) = self.zone else {
+                    return Err(LogError::NoOffset {
+                        path: self.path.clone(),
+                        line,
+                        column: self.time_col_name.clone(),
+                        text: shown(raw),
+                    });
+                };
+                match zone.resolve(local) {
+                    Local::Single(t) => t,
+                    Local::Skipped => {
+                        self.stats.dst_skipped.push(line, None, None, || {
+                            format!(
+                                "'{}' does not exist in {} (clocks set forward)",
+                                shown(raw),
+                                zone.label()
+                            )
+                        });
+                        return Ok(None);
                     }
-                    r
+                    Local::Repeated { earlier, later } => {
+                        // Row order decides: the first offset until time
+                        // would go back, then the second.
+                        let second = self.frontier.is_some_and(|f| earlier < f);
+                        let t = if second { later } else { earlier };
+                        if second {
+                            self.stats.dst_repeated_later += 1;
+                        }
+                        self.stats.dst_repeated.push(line, Some(t), None, || {
+                            format!(
+                                "'{}' read with the {} offset ({})",
+                                shown(raw),
+                                if second { "second" } else { "first" },
+                                offset_text(zone.offset_seconds(t))
+                            )
+                        });
+                        t
+                    }
                 }
             }
-        };
-        self.stats.time = self.time_format;
-        parsed
-    }
-
-    /// The row's time, or `None` when rejected (counted). Also decides the
-    /// time notation on the first readable timestamp.
-    fn row_time(&mut self, line: u64, time_col: usize) -> Result<Option<i64>, LogError> {
-        let parsed = self.parse_time(time_col);
-        let text = self.fields.get(time_col);
-        let t = match parsed {
-            Ok(t) => t,
             Err(TimeError::NoOffset) => {
                 return Err(LogError::NoOffset {
                     path: self.path.clone(),
                     line,
                     column: self.time_col_name.clone(),
-                    text: shown(text),
+                    text: shown(raw),
                 })
             }
             Err(TimeError::Invalid(why)) => {
                 let expected = match self.time_format {
                     TimeFormat::Epoch => "epoch seconds",
+                    TimeFormat::EpochMs => "epoch milliseconds",
+                    TimeFormat::EpochUs => "epoch microseconds",
                     TimeFormat::Iso8601 => "ISO 8601",
+                    TimeFormat::Pattern => "in the [log] time_format pattern",
                     TimeFormat::Auto => "epoch seconds or ISO 8601",
                 };
+                let hint = match self.time_format {
+                    TimeFormat::Pattern => "",
+                    _ => " (another notation needs [log] time_format)",
+                };
                 self.stats.bad_time.push(line, None, None, || {
-                    format!("'{}' is not {expected}: {why}", shown(text))
+                    format!("'{}' is not {expected}: {why}{hint}", shown(raw))
                 });
                 return Ok(None);
             }
+        };
+        Ok(Some(t))
+    }
+
+    /// The row's time, or `None` when rejected (counted): unreadable, a
+    /// local time that does not exist, or earlier than the previous row.
+    /// Also decides the time notation on the first readable timestamp.
+    fn row_time(&mut self, line: u64, time_col: usize) -> Result<Option<i64>, LogError> {
+        let Some(t) = self.row_instant(line, time_col)? else {
+            return Ok(None);
         };
         if let Some(f) = self.frontier {
             if t < f {
@@ -979,6 +1167,126 @@ impl LogReader {
             stats::close_run(&mut ts.open_missing, &mut ts.missing_runs);
             ts.storage = s.storage.pattern();
         }
+    }
+}
+
+/// Data rows read ahead to detect the delimiter and the decimal separator.
+pub const DETECT_ROWS: usize = 5;
+
+/// A timestamp read: an instant, or a wall-clock time (ms as if UTC) to
+/// place in the log's zone.
+enum Stamp {
+    Utc(i64),
+    Local(i64),
+}
+
+fn utc_in_range(ms: i64) -> Result<i64, TimeError> {
+    if (time::MIN_MS..=time::MAX_MS).contains(&ms) {
+        Ok(ms)
+    } else {
+        Err(TimeError::Invalid("out of range (years 0..9999)"))
+    }
+}
+
+/// `+02:00` for 7200 s.
+fn offset_text(seconds: i32) -> String {
+    let sign = if seconds < 0 { '-' } else { '+' };
+    let m = seconds.unsigned_abs() / 60;
+    format!("{sign}{:02}:{:02}", m / 60, m % 60)
+}
+
+/// A strftime-like timestamp pattern, its items parsed once.
+#[derive(Debug)]
+struct Pattern {
+    items: Vec<chrono::format::Item<'static>>,
+    /// Does it carry an offset (`%z`, `%:z`, …)? Then a stamp is an
+    /// instant, otherwise a wall-clock time.
+    offset: bool,
+}
+
+impl Pattern {
+    fn new(pattern: &str) -> Self {
+        use chrono::format::{Fixed, Item, StrftimeItems};
+        let items = StrftimeItems::new(pattern)
+            .parse_to_owned()
+            .unwrap_or_else(|_| vec![Item::Error]);
+        let offset = items.iter().any(|i| {
+            matches!(
+                i,
+                Item::Fixed(
+                    Fixed::TimezoneOffset
+                        | Fixed::TimezoneOffsetColon
+                        | Fixed::TimezoneOffsetDoubleColon
+                        | Fixed::TimezoneOffsetTripleColon
+                        | Fixed::TimezoneOffsetColonZ
+                        | Fixed::TimezoneOffsetZ
+                        | Fixed::RFC2822
+                        | Fixed::RFC3339
+                )
+            )
+        });
+        Self { items, offset }
+    }
+
+    fn parse(&self, text: &[u8]) -> Result<Stamp, TimeError> {
+        let text = std::str::from_utf8(text).map_err(|_| TimeError::Invalid("not UTF-8 text"))?;
+        let bad = |_| TimeError::Invalid("does not match the pattern");
+        let mut parsed = chrono::format::Parsed::new();
+        chrono::format::parse(&mut parsed, text, self.items.iter()).map_err(bad)?;
+        if self.offset {
+            let d = parsed.to_datetime().map_err(bad)?;
+            utc_in_range(d.timestamp_millis()).map(Stamp::Utc)
+        } else {
+            let d = parsed.to_naive_datetime_with_offset(0).map_err(bad)?;
+            Ok(Stamp::Local(d.and_utc().timestamp_millis()))
+        }
+    }
+}
+
+/// The delimiter of a header and its first rows: of `,` `;` tab `|`, the
+/// one splitting the header into the most fields (at least two) with every
+/// row read ahead split into as many; `,` when none does.
+fn detect_delimiter(header: &[u8], rows: &[Vec<u8>]) -> u8 {
+    let count = |line: &[u8], d: u8| {
+        let mut f = Fields::with_delimiter(d);
+        f.split(line).ok().map(|()| f.len())
+    };
+    let mut best = (b',', 1);
+    for d in [b',', b';', b'\t', b'|'] {
+        let Some(n) = count(header, d) else {
+            continue;
+        };
+        if n < 2 || n <= best.1 {
+            continue;
+        }
+        if rows.iter().all(|r| count(r, d) == Some(n)) {
+            best = (d, n);
+        }
+    }
+    best.0
+}
+
+/// A decimal comma when the delimiter is not `,`, some cell of the rows
+/// read ahead is a number with a comma (`12,5`) and none with a point.
+fn detect_decimal(delimiter: u8, rows: &[Vec<u8>]) -> Decimal {
+    if delimiter == b',' {
+        return Decimal::Point;
+    }
+    let (mut comma, mut point) = (false, false);
+    let mut f = Fields::with_delimiter(delimiter);
+    for r in rows {
+        if f.split(r).is_err() {
+            continue;
+        }
+        for i in 0..f.len() {
+            comma |= comma_number(f.get(i));
+            point |= point_number(f.get(i));
+        }
+    }
+    if comma && !point {
+        Decimal::Comma
+    } else {
+        Decimal::Point
     }
 }
 

@@ -20,11 +20,8 @@ fn tag(name: &str, interpolation: Interpolation) -> TagOptions {
 
 fn options() -> LogOptions {
     LogOptions {
-        format: LogFormat::Auto,
-        time: TimeFormat::Auto,
-        time_column: None,
         max_age_ms: 600_000,
-        empty_cells: EmptyCells::Skip,
+        ..LogOptions::default()
     }
 }
 

@@ -3,7 +3,8 @@
 //! people.
 
 use super::time::{format_duration, format_ms};
-use crate::plant::{LogFormat, TimeFormat};
+use crate::plant::{Decimal, LogFormat, TimeFormat};
+use crate::zone::Zone;
 
 /// How many occurrences of each kind are kept with their details; the rest
 /// are only counted.
@@ -252,6 +253,21 @@ pub struct LogStats {
     pub format: LogFormat,
     /// Timestamp notation in use (`Auto` until the first timestamp is read).
     pub time: TimeFormat,
+    /// The epoch unit was guessed from the number of digits (13: ms, 16:
+    /// µs, otherwise s) or from the column's name (`time_ms`).
+    pub time_unit_guessed: Option<String>,
+    /// Zone of naive timestamps (`[log] timezone`), if set.
+    pub timezone: Option<String>,
+    /// Zone of the times in [`LogStats::describe`] (and the reports).
+    #[serde(serialize_with = "zone_label")]
+    pub report_zone: Zone,
+    /// Field delimiter in use, as written in `[log] delimiter` (`tab` for
+    /// a tab).
+    pub delimiter: String,
+    /// Whether the delimiter was detected (not configured).
+    pub delimiter_detected: bool,
+    /// Decimal separator in use (never `Auto`).
+    pub decimal: Decimal,
     /// Flat-line age in use, ms (0: detection off).
     pub flat_line_ms: u64,
     /// Lines read, header and blank lines included.
@@ -262,8 +278,23 @@ pub struct LogStats {
     pub blank_lines: u64,
     /// Long format: rows of tags not asked for (not checked further).
     pub rows_other_tags: u64,
+    /// Long format: the first distinct tags not asked for (at most 10).
+    pub other_tags_seen: Vec<String>,
+    /// Long format: line of the first row of a tag not asked for.
+    pub first_other_tag_line: Option<u64>,
     /// Rejected: timestamp that cannot be parsed.
     pub bad_time: FaultList,
+    /// Rejected: a local time in the hour skipped when clocks are set
+    /// forward (daylight saving time starts): no such instant.
+    pub dst_skipped: FaultList,
+    /// Local times in the hour repeated when clocks are set back, read by
+    /// row order: the first offset (the earlier instant) until time goes
+    /// back within the hour, then the second. All are counted here (used,
+    /// not rejected); the detail gives the offset chosen.
+    pub dst_repeated: FaultList,
+    /// Of [`LogStats::dst_repeated`], the stamps read with the second
+    /// (later) offset.
+    pub dst_repeated_later: u64,
     /// Rejected: timestamp earlier than the previous accepted row.
     pub backwards: FaultList,
     /// Rejected: number of fields differs from the header's.
@@ -285,7 +316,146 @@ pub struct LogStats {
 impl LogStats {
     /// Rows rejected whole, all reasons.
     pub fn rows_rejected(&self) -> u64 {
-        self.bad_time.total + self.backwards.total + self.wrong_fields.total + self.malformed.total
+        self.bad_time.total
+            + self.dst_skipped.total
+            + self.backwards.total
+            + self.wrong_fields.total
+            + self.malformed.total
+    }
+
+    /// The delimiter as a byte.
+    fn delimiter_byte(&self) -> u8 {
+        match self.delimiter.as_str() {
+            "tab" => b'\t',
+            d => d.bytes().next().unwrap_or(b','),
+        }
+    }
+
+    /// Why no tag has any valid point (for a log that gives nothing to
+    /// replay): each cause that occurred, the most frequent first, with its
+    /// count and first offending line.
+    pub fn why_empty(&self) -> String {
+        let zone = &self.report_zone;
+        if self.rows == 0 {
+            return format!(
+                "no data rows after the header (line {} is the last line of the file)",
+                self.lines
+            );
+        }
+        let mut causes: Vec<(u64, String)> = Vec::new();
+        let mut row_cause = |list: &FaultList, what: &str, hint: &str| {
+            if list.total > 0 {
+                causes.push((
+                    list.total,
+                    format!(
+                        "{} of {} {} {what}{}{hint}",
+                        list.total,
+                        self.rows,
+                        plural(self.rows, "row", "rows"),
+                        first_fault(list, zone)
+                    ),
+                ));
+            }
+        };
+        let time_hint = match self.time {
+            TimeFormat::Pattern => "; check [log] time_format",
+            _ => {
+                "; set [log] time (\"iso8601\", \"epoch\", \"epoch_ms\", \"epoch_us\") or \
+                 [log] time_format (e.g. \"%m/%d/%Y %I:%M:%S %p\"), and [log] timezone for \
+                 times without offset"
+            }
+        };
+        row_cause(&self.bad_time, "with an unreadable timestamp", time_hint);
+        row_cause(
+            &self.dst_skipped,
+            "with a local time that does not exist (clocks set forward)",
+            "",
+        );
+        row_cause(
+            &self.backwards,
+            "going back in time",
+            "; rows must be in time order",
+        );
+        let wrong_hint = format!(
+            "; the delimiter is {}{}: set [log] delimiter if that is wrong",
+            super::header::delimiter_name(self.delimiter_byte()),
+            if self.delimiter_detected {
+                " (detected)"
+            } else {
+                ""
+            }
+        );
+        row_cause(
+            &self.wrong_fields,
+            "with a different number of fields than the header",
+            &wrong_hint,
+        );
+        row_cause(&self.malformed, "malformed", "");
+        if self.rows_other_tags > 0 {
+            causes.push((
+                self.rows_other_tags,
+                format!(
+                    "{} of {} {} of tags not asked for (first at line {}; tags seen: {}); \
+                     tags are matched exactly",
+                    self.rows_other_tags,
+                    self.rows,
+                    plural(self.rows, "row", "rows"),
+                    self.first_other_tag_line.unwrap_or(0),
+                    self.other_tags_seen
+                        .iter()
+                        .map(|t| format!("'{t}'"))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            ));
+        }
+        for t in &self.tags {
+            let decimal = if self.decimal == Decimal::Comma {
+                "; values are read with a decimal comma ([log] decimal)"
+            } else {
+                "; a decimal comma needs [log] decimal = \"comma\" and a delimiter other than ','"
+            };
+            let lists = [
+                (
+                    &t.missing,
+                    "value missing or not a number",
+                    "values missing or not numbers",
+                    decimal,
+                ),
+                (
+                    &t.bad_quality,
+                    "point of bad quality (rejected)",
+                    "points of bad quality (rejected)",
+                    "",
+                ),
+            ];
+            for (list, one, many, hint) in lists {
+                if list.total > 0 {
+                    causes.push((
+                        list.total,
+                        format!(
+                            "{}: {} {}{}{hint}",
+                            t.tag,
+                            list.total,
+                            plural(list.total, one, many),
+                            first_fault(list, zone)
+                        ),
+                    ));
+                }
+            }
+        }
+        if causes.is_empty() {
+            return format!(
+                "{} rows read, none holds a value of a tag asked for",
+                self.rows
+            );
+        }
+        causes.sort_by_key(|c| std::cmp::Reverse(c.0));
+        causes
+            .into_iter()
+            .map(|(_, c)| c)
+            .collect::<Vec<_>>()
+            .join("; and ")
     }
 
     /// Stats of one tag by name.
@@ -331,20 +501,57 @@ impl LogStats {
             LogFormat::Long => "long",
             _ => "wide",
         };
+        let zone = &self.report_zone;
         let time = match self.time {
             TimeFormat::Iso8601 => "ISO 8601 timestamps",
             TimeFormat::Epoch => "epoch-second timestamps",
+            TimeFormat::EpochMs => "epoch-millisecond timestamps",
+            TimeFormat::EpochUs => "epoch-microsecond timestamps",
+            TimeFormat::Pattern => "timestamps by [log] time_format",
             TimeFormat::Auto => "no timestamp read",
         };
+        let mut dialect = String::new();
+        if self.delimiter != "," {
+            dialect.push_str(&format!(
+                ", {} delimiter",
+                super::header::delimiter_name(self.delimiter_byte())
+            ));
+        }
+        if self.decimal == Decimal::Comma {
+            dialect.push_str(", decimal comma");
+        }
+        if let Some(z) = &self.timezone {
+            dialect.push_str(&format!(", local times in {z}"));
+        }
         out.push(format!(
-            "{}: {} rows read ({format} format, {time}), {} rejected",
+            "{}: {} rows read ({format} format, {time}{dialect}), {} rejected",
             self.path,
             self.rows,
             self.rows_rejected()
         ));
         out.extend(self.order.describe());
+        if let Some(why) = &self.time_unit_guessed {
+            out.push(format!(
+                "timestamp unit guessed {why}; set [log] time to be sure"
+            ));
+        }
+        if self.dst_repeated.total > 0 {
+            out.push(format!(
+                "{} {} in a repeated hour (clocks set back), read by row order: {} with the \
+                 first offset, {} with the second{}",
+                self.dst_repeated.total,
+                plural(self.dst_repeated.total, "timestamp", "timestamps"),
+                self.dst_repeated.total - self.dst_repeated_later,
+                self.dst_repeated_later,
+                first_fault(&self.dst_repeated, zone)
+            ));
+        }
         let rows = [
             (&self.bad_time, "rejected: timestamp cannot be parsed"),
+            (
+                &self.dst_skipped,
+                "rejected: local time in the hour skipped when clocks were set forward",
+            ),
             (
                 &self.backwards,
                 "rejected: timestamp earlier than the previous row",
@@ -362,7 +569,7 @@ impl LogStats {
                     "{} {} {what}{}",
                     list.total,
                     plural(list.total, "row", "rows"),
-                    first_fault(list)
+                    first_fault(list, zone)
                 ));
             }
         }
@@ -402,7 +609,7 @@ impl LogStats {
                         "{name}: {} {}{}",
                         list.total,
                         plural(list.total, one, many),
-                        first_fault(list)
+                        first_fault(list, zone)
                     ));
                 }
             }
@@ -430,7 +637,7 @@ impl LogStats {
                         list.total,
                         plural(list.total, one, many),
                         format_duration(list.total_ms),
-                        first_window(list)
+                        first_window(list, zone)
                     ));
                 }
             }
@@ -454,14 +661,23 @@ fn plural<'a>(n: u64, one: &'a str, many: &'a str) -> &'a str {
     }
 }
 
-fn first_fault(list: &FaultList) -> String {
+/// A time for a description: RFC 3339 UTC as before (`…Z`, milliseconds
+/// only when not whole), or ISO 8601 with the offset in another zone.
+fn at(zone: &Zone, t: i64) -> String {
+    match zone {
+        Zone::Utc => format_ms(t),
+        _ => zone.iso(t),
+    }
+}
+
+fn first_fault(list: &FaultList, zone: &Zone) -> String {
     let Some(f) = list.first.first() else {
         return String::new();
     };
     let mut s = format!(" (first at line {}", f.line);
     if let Some(t) = f.time {
         s.push_str(", ");
-        s.push_str(&format_ms(t));
+        s.push_str(&at(zone, t));
     }
     if let Some(v) = f.value {
         s.push_str(&format!(", value {v}"));
@@ -474,12 +690,12 @@ fn first_fault(list: &FaultList) -> String {
     s
 }
 
-fn first_window(list: &WindowList) -> String {
+fn first_window(list: &WindowList, zone: &Zone) -> String {
     match list.first.first() {
         Some(w) => format!(
             " (first {} to {}, lines {}–{})",
-            format_ms(w.start),
-            format_ms(w.end),
+            at(zone, w.start),
+            at(zone, w.end),
             w.start_line,
             w.end_line
         ),
@@ -498,4 +714,9 @@ fn opt_time<Se: serde::Serializer>(t: &Option<i64>, s: Se) -> Result<Se::Ok, Se:
         Some(t) => s.serialize_str(&format_ms(*t)),
         None => s.serialize_none(),
     }
+}
+
+/// A zone as its name.
+fn zone_label<Se: serde::Serializer>(z: &Zone, s: Se) -> Result<Se::Ok, Se::Error> {
+    s.serialize_str(z.label())
 }

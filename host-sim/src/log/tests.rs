@@ -36,6 +36,7 @@ fn opts(format: LogFormat, time: TimeFormat) -> LogOptions {
         time_column: None,
         max_age_ms: 600_000,
         empty_cells: EmptyCells::Skip,
+        ..LogOptions::default()
     }
 }
 
@@ -426,7 +427,10 @@ fn open_errors_name_file_line_and_columns() {
         &opts(LogFormat::Long, TimeFormat::Auto),
         &tags,
     );
-    assert!(e.contains("needs a 'value' column"), "{e}");
+    assert!(
+        e.contains("needs a 'value' or 'val' column (or set [log] value_column)"),
+        "{e}"
+    );
     let e = open_err("tag,value\n", &auto(), &tags);
     assert!(e.contains("'time' or 'timestamp'"), "{e}");
     let e = open_err("time,FI-101,FI-101\n", &auto(), &tags);
@@ -458,7 +462,7 @@ fn timestamp_without_offset_is_an_error_naming_the_line() {
     };
     assert!(
         e.starts_with("test.csv:3: column 'time': timestamp '2026-03-01T05:01:00' has no offset")
-            && e.contains("an offset is required"),
+            && e.contains("set [log] timezone"),
         "{e}"
     );
     let mut r = reader("time,FI-101\n2026-03-01 05:00:00,1\n", &tags);

@@ -17,9 +17,10 @@ pub enum TimeError {
     NoOffset,
 }
 
-/// Does the text look like a number (epoch seconds)? Used by auto-detection.
+/// Does the text look like a number (epoch seconds, or microseconds within
+/// range)? Used by auto-detection.
 pub fn looks_numeric(text: &[u8]) -> bool {
-    parse_epoch(text).is_ok()
+    parse_epoch(text).is_ok() || parse_epoch_unit(text, 1000).is_ok()
 }
 
 /// Seconds since the Unix epoch, decimals allowed (`1772344800`,
@@ -88,11 +89,70 @@ fn frac_to_ms(frac: &[u8]) -> i64 {
     ms
 }
 
+/// Milliseconds (`scale` 1) or microseconds (`scale` 1000) since the epoch,
+/// an integer (a decimal part is accepted and rounded); returned in ms,
+/// rounded to the nearest (halves away from zero).
+pub fn parse_epoch_unit(text: &[u8], scale: i128) -> Result<i64, TimeError> {
+    let s = trim(text);
+    let (negative, digits) = match s.first() {
+        Some(b'-') => (true, &s[1..]),
+        Some(b'+') => (false, &s[1..]),
+        _ => (false, s),
+    };
+    let (int_part, frac_part) = match digits.iter().position(|&b| b == b'.') {
+        Some(i) => (&digits[..i], &digits[i + 1..]),
+        None => (digits, &digits[digits.len()..]),
+    };
+    if int_part.is_empty() || !int_part.iter().chain(frac_part).all(u8::is_ascii_digit) {
+        return Err(TimeError::Invalid("not an integer"));
+    }
+    if int_part.len() > 20 {
+        return Err(TimeError::Invalid("out of range (years 0..9999)"));
+    }
+    // The number in units of 1/1000 of its unit (three fraction digits).
+    let mut milli: i128 = 0;
+    for &d in int_part {
+        milli = milli * 10 + i128::from(d - b'0');
+    }
+    milli *= 1000;
+    milli += i128::from(frac_to_ms(frac_part));
+    let per_ms = scale * 1000;
+    let ms = (milli + per_ms / 2) / per_ms;
+    let ms = if negative { -ms } else { ms };
+    match i64::try_from(ms) {
+        Ok(ms) if (MIN_MS..=MAX_MS).contains(&ms) => Ok(ms),
+        _ => Err(TimeError::Invalid("out of range (years 0..9999)")),
+    }
+}
+
+/// Digits before the decimal point of a numeric timestamp (sign excluded),
+/// for guessing its unit.
+pub fn integer_digits(text: &[u8]) -> usize {
+    let s = trim(text);
+    let s = s.strip_prefix(b"-").unwrap_or(s);
+    s.iter().take_while(|b| b.is_ascii_digit()).count()
+}
+
 /// ISO 8601 / RFC 3339 date-time with an offset:
 /// `YYYY-MM-DDTHH:MM[:SS[.fff…]]` followed by `Z` or `±HH:MM` (also `±HHMM`
 /// and `±HH`). `T` may be a space or lower case, `Z` lower case; a decimal
 /// comma is accepted. Leap seconds (`:60`) are refused.
 pub fn parse_iso(text: &[u8]) -> Result<i64, TimeError> {
+    match parse_iso_local(text)? {
+        (ms, Some(offset_min)) => {
+            let ms = ms - i64::from(offset_min) * 60_000;
+            if !(MIN_MS..=MAX_MS).contains(&ms) {
+                return Err(TimeError::Invalid("out of range (years 0..9999)"));
+            }
+            Ok(ms)
+        }
+        (_, None) => Err(TimeError::NoOffset),
+    }
+}
+
+/// As [`parse_iso`], the offset optional: the wall-clock time in ms counted
+/// as if it were UTC, and the offset in minutes when written.
+pub fn parse_iso_local(text: &[u8]) -> Result<(i64, Option<i32>), TimeError> {
     let s = trim(text);
     let mut p = Cursor { s, i: 0 };
     let year = p
@@ -146,10 +206,10 @@ pub fn parse_iso(text: &[u8]) -> Result<i64, TimeError> {
         return Err(TimeError::Invalid("time of day out of range"));
     }
     let offset_min = match p.peek() {
-        None => return Err(TimeError::NoOffset),
+        None => None,
         Some(b'Z' | b'z') => {
             p.i += 1;
-            0
+            Some(0)
         }
         Some(sign @ (b'+' | b'-')) => {
             p.i += 1;
@@ -166,11 +226,7 @@ pub fn parse_iso(text: &[u8]) -> Result<i64, TimeError> {
                 return Err(TimeError::Invalid("offset out of range"));
             }
             let m = oh * 60 + om;
-            if sign == b'-' {
-                -m
-            } else {
-                m
-            }
+            Some(if sign == b'-' { -m } else { m })
         }
         Some(_) => return Err(TimeError::Invalid("unexpected text after the time")),
     };
@@ -179,11 +235,8 @@ pub fn parse_iso(text: &[u8]) -> Result<i64, TimeError> {
     }
     let days = days_from_civil(year, month, day);
     let local_s = days * 86_400 + hour * 3600 + minute * 60 + second;
-    let ms = (local_s - offset_min * 60) * 1000 + frac_ms;
-    if !(MIN_MS..=MAX_MS).contains(&ms) {
-        return Err(TimeError::Invalid("out of range (years 0..9999)"));
-    }
-    Ok(ms)
+    let offset = offset_min.map(|m| i32::try_from(m).unwrap_or(0));
+    Ok((local_s * 1000 + frac_ms, offset))
 }
 
 struct Cursor<'a> {
@@ -373,6 +426,38 @@ mod tests {
         ] {
             assert!(parse_epoch(bad).is_err(), "{bad:?}");
         }
+    }
+
+    #[test]
+    fn epoch_milli_and_microseconds() {
+        // T0 in ms and µs is the same digits with 3 and 6 zeros (definition).
+        assert_eq!(parse_epoch_unit(b"1772341200000", 1), Ok(T0));
+        assert_eq!(parse_epoch_unit(b"1772341200250.6", 1), Ok(T0 + 251));
+        assert_eq!(parse_epoch_unit(b"1772341200000000", 1000), Ok(T0));
+        assert_eq!(parse_epoch_unit(b"1772341200000499", 1000), Ok(T0));
+        assert_eq!(parse_epoch_unit(b"1772341200000500", 1000), Ok(T0 + 1));
+        assert_eq!(parse_epoch_unit(b"-1500", 1), Ok(-1500));
+        for bad in [
+            &b""[..],
+            b"12a",
+            b"1e12",
+            b"2026-03-01",
+            b"123456789012345678901",
+        ] {
+            assert!(parse_epoch_unit(bad, 1).is_err(), "{bad:?}");
+        }
+        assert_eq!(integer_digits(b" 1772341200000 "), 13);
+        assert_eq!(integer_digits(b"-1772341200.5"), 10);
+    }
+
+    #[test]
+    fn iso_local_keeps_the_wall_clock() {
+        // Without offset: the wall clock as if UTC; with one: also returned.
+        assert_eq!(parse_iso_local(b"2026-03-01T05:00:00"), Ok((T0, None)));
+        assert_eq!(
+            parse_iso_local(b"2026-03-01 06:00:00+01:00"),
+            Ok((T0 + 3_600_000, Some(60)))
+        );
     }
 
     #[test]

@@ -1,6 +1,7 @@
 //! The replay's summary: one struct, serialised with serde for
 //! `summary.json` and displayed for the terminal. SI units throughout;
-//! times as ISO 8601 UTC text.
+//! times as ISO 8601 text with milliseconds in the plant's report zone
+//! ([`crate::plant::LogOptions::output_zone`]: `…+01:00`, or `…Z` in UTC).
 
 use std::collections::BTreeMap;
 use std::fmt;
@@ -9,10 +10,10 @@ use holdup_kernel::diagnostics::DeviceStatus;
 use holdup_kernel::Method;
 use serde::Serialize;
 
-use super::iso;
 use super::labs::{AnalyserTally, LabTally};
 use super::record::{Record, Span};
 use crate::lab::Agreement;
+use crate::zone::Zone;
 
 /// A bias is reported as one to recalibrate when it is at least this many
 /// standard deviations from zero ...
@@ -40,11 +41,12 @@ pub struct Window {
     pub end: Option<String>,
 }
 
-impl From<&Span> for Window {
-    fn from(s: &Span) -> Self {
+impl Window {
+    /// A span's times in `zone`.
+    pub fn new(s: &Span, zone: &Zone) -> Self {
         Self {
-            start: iso(s.start),
-            end: s.end.map(iso),
+            start: zone.iso(s.start),
+            end: s.end.map(|t| zone.iso(t)),
         }
     }
 }
@@ -64,14 +66,15 @@ pub struct AgreementOut {
     pub max_error_at: Option<String>,
 }
 
-impl From<&Agreement> for AgreementOut {
-    fn from(a: &Agreement) -> Self {
+impl AgreementOut {
+    /// An agreement, its time in `zone`.
+    pub fn new(a: &Agreement, zone: &Zone) -> Self {
         Self {
             n: a.n,
             bias_mol_m3: a.bias,
             rmse_mol_m3: a.rmse,
             max_abs_error_mol_m3: a.max_abs,
-            max_error_at: a.max_at.map(iso),
+            max_error_at: a.max_at.map(|t| zone.iso(t)),
         }
     }
 }
@@ -258,6 +261,8 @@ pub struct Summary {
     pub corrected_by: &'static str,
     /// Tick, ms.
     pub tick_ms: u32,
+    /// Zone of the summary's times (IANA name, or `UTC`).
+    pub time_zone: String,
     /// First tick.
     pub start: String,
     /// End of the last tick.
@@ -325,7 +330,7 @@ pub fn status_out(r: &Record) -> StatusOut {
 }
 
 /// The conditioning events of the record.
-pub fn inputs_out(r: &Record) -> Vec<InputEvents> {
+pub fn inputs_out(r: &Record, zone: &Zone) -> Vec<InputEvents> {
     r.conditioned_events()
         .map(|i| InputEvents {
             input: i.name.clone(),
@@ -336,7 +341,12 @@ pub fn inputs_out(r: &Record) -> Vec<InputEvents> {
                 .collect(),
             windows: i.not_good.total,
             windows_total_s: i.not_good.total_ms as f64 / 1000.0,
-            first_windows: i.not_good.first.iter().map(Window::from).collect(),
+            first_windows: i
+                .not_good
+                .first
+                .iter()
+                .map(|w| Window::new(w, zone))
+                .collect(),
         })
         .collect()
 }
@@ -468,9 +478,10 @@ impl fmt::Display for Summary {
         )?;
         writeln!(
             f,
-            "  span {} .. {} ({} ticks, {:.2} s wall, {:.0} ticks/s)",
+            "  span {} .. {} ({}; {} ticks, {:.2} s wall, {:.0} ticks/s)",
             self.start,
             self.end,
+            self.time_zone,
             self.ticks,
             self.wall_seconds,
             self.ticks as f64 / self.wall_seconds.max(1e-9)

@@ -95,6 +95,7 @@ pub fn run_log(data: &[u8], format: LogFormat) {
         time_column: None,
         max_age_ms: 120_000,
         empty_cells: holdup_sim::plant::EmptyCells::Skip,
+        ..LogOptions::default()
     };
     let tags = tag_options();
     let reader: Box<dyn std::io::Read> = Box::new(std::io::Cursor::new(data.to_vec()));

@@ -44,10 +44,12 @@ use self::summary::{
     FinalOut, LevelAgreement, LogOut, MeterBias, SpeciesAgreement, Summary, Window,
     BIAS_SIGNIFICANT_MIN, BIAS_SIGNIFICANT_SIGMAS,
 };
+use crate::clock::Clock;
 use crate::digits::Digits;
 use crate::lab::{self, LabError, LabResult};
 use crate::log::{LogError, LogReader};
 use crate::plant::{Plant, ScalarKind};
+use crate::report::{self, Events, Report};
 use crate::text::CAUTION;
 
 /// What to replay and where to put the results.
@@ -61,7 +63,8 @@ pub struct Request<'a> {
     pub lab: Option<&'a Path>,
     /// Output folder (created if missing).
     pub out_dir: &'a Path,
-    /// Write one estimates row every this many ms of plant time (0: every tick).
+    /// Write one estimates row every this many ms of plant time (0: every
+    /// tick); a whole number of ticks (else [`ReplayError::Interval`]).
     pub output_every_ms: u64,
     /// Show a progress indicator on the terminal.
     pub progress: bool,
@@ -93,6 +96,8 @@ pub enum ReplayError {
     },
     /// The log holds no usable data.
     EmptyLog(PathBuf),
+    /// The interval of `estimates.csv` is not a whole number of ticks.
+    Interval(String),
     /// Writing an output failed.
     Io {
         /// The file being written.
@@ -120,6 +125,7 @@ impl fmt::Display for ReplayError {
                 "{}: the log holds no valid timestamped data to replay",
                 p.display()
             ),
+            ReplayError::Interval(m) => write!(f, "estimates interval: {m}"),
             ReplayError::Io { path, error } => write!(f, "{}: {error}", path.display()),
         }
     }
@@ -220,12 +226,15 @@ struct Replay<'a, S, const N: usize, const D: usize> {
     geometry: Geometry<f64>,
     level_error: LevelError,
     bias_names: Vec<String>,
+    clock: Clock,
 }
 
 fn run_typed<S: Scalar, const N: usize, const D: usize>(
     req: &Request<'_>,
 ) -> Result<Outcome, ReplayError> {
     let plant = req.plant;
+    let every = estimates::output_interval(req.output_every_ms, plant.tick_ms)
+        .map_err(ReplayError::Interval)?;
     std::fs::create_dir_all(req.out_dir).map_err(io_err(req.out_dir))?;
     let lab_results: Vec<LabResult> = match req.lab {
         Some(p) => lab::load(p, plant).map_err(ReplayError::Lab)?,
@@ -255,16 +264,25 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
         .map(|e| e.bias_meters.iter().map(|m| m.name.clone()).collect())
         .unwrap_or_default();
     let tick = i64::from(plant.tick_ms);
+    // The report's clock: UTC until the plant's zone is configured.
+    let clock = Clock::utc();
     let mut replay = Replay {
         req,
         t0,
         tick,
-        every: (req.output_every_ms as i64).max(tick),
+        every: i64::try_from(every).unwrap_or(i64::MAX),
         main,
         open,
         labs: Labs::new(plant, lab_results),
         record: Record::new(plant),
-        csv: EstimatesCsv::create(req.out_dir, plant, &bias_names, Digits::of::<S>())?,
+        csv: EstimatesCsv::create(
+            req.out_dir,
+            plant,
+            &bias_names,
+            Digits::of::<S>(),
+            clock.clone(),
+        )?,
+        clock,
         figures: Figures::new(plant, &bias_names),
         geometry: Geometry::new(plant.shape.clone()).map_err(kernel_err(plant))?,
         level_error: LevelError::default(),
@@ -323,7 +341,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
             }
             self.record.tick(t, self.tick, &r, &self.main);
             self.figures
-                .push_outflow(self.hours(t + self.tick), self.tick as f64 / 1000.0, &r);
+                .push_outflow(t + self.tick, self.tick as f64 / 1000.0, &r);
             report = Some(r);
             frame = next;
             t += self.tick;
@@ -369,7 +387,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
             self.level_error.add(open_level - z);
         }
         self.figures.push(
-            x,
+            t,
             &est,
             open.as_ref(),
             measured,
@@ -407,15 +425,27 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
         let stats = reader.stats();
         let summary = self.summary(stats, sources, t_end, wall);
         self.csv.finish()?;
-        self.figures.write(
+        let events = Events::collect(stats, &self.record);
+        let plots = self.figures.write(
             req.out_dir,
             plant,
-            self.t0,
+            &self.clock,
             t_end,
-            stats,
-            &self.record,
+            &events,
             self.labs.results(),
         )?;
+        let page = Report {
+            summary: &summary,
+            plant,
+            events: &events,
+            plots: &plots,
+            labs: self.labs.results(),
+            clock: &self.clock,
+            start: self.t0,
+            end: t_end,
+        };
+        let html = req.out_dir.join(report::FILE);
+        page.write(req.out_dir).map_err(io_err(&html))?;
         let json_path = req.out_dir.join("summary.json");
         let json = serde_json::to_string_pretty(&summary).unwrap_or_default() + "\n";
         std::fs::write(&json_path, json).map_err(io_err(&json_path))?;
@@ -510,6 +540,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
         let mut outputs = vec![
             "estimates.csv",
             "summary.json",
+            report::FILE,
             "holdup.svg",
             "concentrations.svg",
             "flows.svg",
@@ -540,6 +571,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
                 (true, false, false) => "corrected by level and analysers",
             },
             tick_ms: plant.tick_ms,
+            estimates_every_ms: u64::try_from(self.every).unwrap_or(0),
             start: iso(self.t0),
             end: iso(t_end),
             ticks: self.record.ticks,

@@ -538,8 +538,8 @@ fn example_figure() -> Figure {
     for (t, v) in [(6.0, 22.9), (18.5, 24.42), (42.0, 17.3), (66.25, 22.05)] {
         lab.push(t, v);
     }
-    let gap = Band::new(30.0, 34.0, "gap in log");
-    let flat = Band::new(50.0, 58.0, "flat-lined FI-101");
+    let gap = Band::new(30.0, 34.0, Shade::DataGap);
+    let flat = Band::new(50.0, 58.0, Shade::FlatLine);
     Figure {
         title: "Replay of tank T-1: holdup estimate vs. level and lab".into(),
         x_label: time_axis_label("2024-03-05T06:00:00Z"),
@@ -548,14 +548,14 @@ fn example_figure() -> Figure {
                 y_label: "flow [m³/h]".into(),
                 series: vec![fin, fout],
                 markers: vec![],
-                bands: vec![gap.clone(), flat.clone()],
+                bands: vec![gap, flat],
                 hlines: vec![],
             },
             Panel {
                 y_label: "holdup [m³]".into(),
                 series: vec![est, lvl],
                 markers: vec![lab],
-                bands: vec![gap.clone(), flat],
+                bands: vec![gap, flat],
                 hlines: vec![
                     (28.0, "high limit 28 m³".into()),
                     (12.0, "low limit 12 m³".into()),
@@ -570,6 +570,7 @@ fn example_figure() -> Figure {
             },
         ],
         footer: CAUTION.into(),
+        ..Figure::default()
     }
 }
 
@@ -592,8 +593,8 @@ fn example_figure_is_well_formed_and_complete() {
         "holdup estimate",
         "holdup from level LI-103",
         "lab sample",
-        "gap in log",
-        "flat-lined FI-101",
+        Shade::DataGap.label(),
+        Shade::FlatLine.label(),
         "high limit 28 m³",
         "24.42",
     ] {
@@ -645,9 +646,9 @@ fn hostile_data_never_panics_or_leaks_non_finite_numbers() {
             series: vec![s, Series::new("empty", Color::Yellow)],
             markers: vec![m],
             bands: vec![
-                Band::new(f64::NAN, 1.0, "bad band"),
-                Band::new(2.0, 2.0, "zero-width"),
-                Band::new(3.0, -1.0, "reversed"),
+                Band::new(f64::NAN, 1.0, Shade::DataGap),
+                Band::new(2.0, 2.0, Shade::MoreOutThanIn),
+                Band::new(3.0, -1.0, Shade::InputNotGood),
             ],
             hlines: vec![(f64::NAN, "nan line".into()), (f64::MAX, "max".into())],
         };
@@ -657,6 +658,7 @@ fn hostile_data_never_panics_or_leaks_non_finite_numbers() {
                 x_label: "x".into(),
                 panels,
                 footer: "f\u{0}oot\ner".into(),
+                ..Figure::default()
             };
             let svg = fig.to_svg();
             let (elems, texts) = check_xml(&svg).unwrap_or_else(|e| panic!("case {ci}: {e}"));
@@ -703,7 +705,7 @@ fn legends_wrap_and_many_markers_drop_value_labels() {
         m.push(f64::from(i) / 41.0, 123.456);
     }
     p.markers.push(m);
-    let (items, rows) = legend_rows(&p, &[], W - 26.0);
+    let (items, rows) = legend_rows(&p, W - 26.0);
     assert_eq!(items.len(), 13);
     assert!(rows.len() >= 3);
     for row in &rows {

@@ -258,6 +258,9 @@ pub struct Summary {
     pub corrected_by: &'static str,
     /// Tick, ms.
     pub tick_ms: u32,
+    /// Interval between the rows of `estimates.csv`, ms (a whole number of
+    /// ticks).
+    pub estimates_every_ms: u64,
     /// First tick.
     pub start: String,
     /// End of the last tick.
@@ -523,6 +526,11 @@ impl fmt::Display for Summary {
                 )?;
             }
         }
+        writeln!(
+            f,
+            "Estimates: one row {} of plant time in estimates.csv",
+            super::estimates::interval_words(self.estimates_every_ms, self.tick_ms)
+        )?;
         writeln!(f, "Outputs: {}", self.outputs.join(", "))?;
         write!(f, "\n{}", self.caution)
     }

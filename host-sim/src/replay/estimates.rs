@@ -288,7 +288,7 @@ mod tests {
     fn intervals_in_words() {
         assert_eq!(interval_words(1000, 1000), "every tick (1 s)");
         assert_eq!(interval_words(60_000, 1000), "every 1 min (60 ticks)");
-        assert_eq!(interval_words(5400_000, 1000), "every 90 min (5400 ticks)");
+        assert_eq!(interval_words(5_400_000, 1000), "every 90 min (5400 ticks)");
         assert_eq!(duration_words(1500), "1.5 s");
         assert_eq!(duration_words(250), "250 ms");
         assert_eq!(duration_words(86_400_000), "1 d");

@@ -94,8 +94,7 @@ impl Events {
                 });
             }
         }
-        ev.list
-            .sort_by(|a, b| (a.start, a.shade).cmp(&(b.start, b.shade)));
+        ev.list.sort_by_key(|e| (e.start, e.shade));
         ev
     }
 

@@ -787,6 +787,34 @@ fn faulty_log_completes_and_reports_every_fault() {
             "{name}"
         );
     }
+    // Shading only where the signal is drawn: the flow tags' flat line and
+    // missing values on the flows panel, not on holdup and level (whose
+    // level tag has the hole, shaded there) nor on the composition.
+    use holdup_sim::plot::Shade;
+    let svg = |f: &str| std::fs::read_to_string(out.join(f)).expect("svg");
+    let fill = |s: Shade| format!("fill=\"{}\"", s.fill());
+    let (flows, holdup, conc) = (
+        svg("flows.svg"),
+        svg("holdup.svg"),
+        svg("concentrations.svg"),
+    );
+    for s in [Shade::FlatLine, Shade::MissingValues, Shade::DataGap] {
+        assert!(flows.contains(&fill(s)), "flows.svg lacks {s:?}");
+        assert!(flows.contains(s.label()), "flows.svg legend lacks {s:?}");
+    }
+    for s in [Shade::FlatLine, Shade::MissingValues] {
+        assert!(!conc.contains(&fill(s)), "concentrations.svg shaded {s:?}");
+    }
+    // The hole is on the analyser AI-1 too: its species' panel.
+    assert!(conc.contains(&fill(Shade::DataGap)));
+    assert!(holdup.contains(&fill(Shade::DataGap)));
+    assert!(!holdup.contains(&fill(Shade::FlatLine)));
+    assert!(!holdup.contains(Shade::FlatLine.label()));
+    // No lab file: no lab legend, and the report says so.
+    assert!(!conc.contains(">lab result<"));
+    let html = std::fs::read_to_string(out.join("report.html")).expect("report.html");
+    assert!(html.contains("No lab file was given"));
+    assert!(html.contains(Shade::FlatLine.label()) && html.contains("FI-2"));
 }
 
 #[test]

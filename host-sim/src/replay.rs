@@ -7,8 +7,9 @@
 //! **the sensor** ([`assemble`] builds it from the plant; it conditions,
 //! steps, corrects and diagnoses — the replay has no per-tick logic of its
 //! own) → **sinks** ([`estimates`]: `estimates.csv`; [`figures`]: SVG
-//! plots; [`record`] and [`summary`]: `summary.json` and the text). SI
-//! units inside; conversion only in the sinks.
+//! plots; [`record`] and [`summary`]: `summary.json` and the text;
+//! [`crate::report`]: `report.html`). SI units inside; conversion only in
+//! the sinks, times on the report's [`Clock`].
 //!
 //! Each row of `estimates.csv` at time `t` is the state at `t` predicted
 //! from everything measured before `t`, with the status of the tick that

@@ -14,6 +14,7 @@
 //! against their replay; [`demo`] generates an invented plant's files;
 //! [`verify`] holds the analytic cases.
 
+pub mod clock;
 pub mod config;
 pub mod demo;
 pub mod digits;
@@ -25,6 +26,7 @@ pub mod plant;
 pub mod plot;
 pub mod registers;
 pub mod replay;
+pub mod report;
 pub mod serve;
 pub mod text;
 pub mod to_kernel;

@@ -57,8 +57,9 @@ enum Command {
         /// Output folder (created if missing).
         #[arg(long)]
         out: PathBuf,
-        /// Write one row of estimates.csv every this much plant time
-        /// (for example "1 min"); default every tick.
+        /// Write one row of estimates.csv every this much plant time, a
+        /// whole number of ticks (for example "10 min"), or "tick" for
+        /// every tick; default 1 min (rounded up to whole ticks).
         #[arg(long)]
         every: Option<String>,
         /// No progress indicator.
@@ -357,17 +358,47 @@ fn run_registers(config_path: &Path, out: &Path) -> ExitCode {
     }
 }
 
+/// The rows' interval of `estimates.csv` from `--every` (None: the
+/// default; `tick`: every tick, 0), checked against the plant's tick.
+fn every_ms(every: Option<&str>, plant: &holdup_sim::plant::Plant) -> Result<u64, String> {
+    let Some(text) = every else {
+        return Ok(replay::estimates::default_every_ms(plant.tick_ms));
+    };
+    if text.trim() == "tick" {
+        return Ok(0);
+    }
+    let ms = units::parse_duration_ms(text).map_err(|e| format!("--every: {e}"))?;
+    if ms == 0 {
+        return Err(format!(
+            "--every \"{text}\": the interval must be positive (\"tick\" writes every tick)"
+        ));
+    }
+    replay::estimates::output_interval(ms, plant.tick_ms).map_err(|e| {
+        format!(
+            "--every \"{text}\": {e} ([plant] tick in {})",
+            plant.path.display()
+        )
+    })
+}
+
 fn run_replay(
     config_path: &Path,
     log: &Path,
     lab: Option<&Path>,
     out: &Path,
-    every_ms: u64,
+    every: Option<&str>,
     quiet: bool,
 ) -> ExitCode {
     let plant = match load_plant(config_path) {
         Ok(p) => p,
         Err(code) => return code,
+    };
+    let every_ms = match every_ms(every, &plant) {
+        Ok(ms) => ms,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return ExitCode::from(2);
+        }
     };
     let req = replay::Request {
         plant: &plant,
@@ -462,7 +493,7 @@ fn main() -> ExitCode {
                 &files.log,
                 Some(&files.lab),
                 &out.join("report"),
-                0,
+                None,
                 quiet,
             )
         }
@@ -473,17 +504,7 @@ fn main() -> ExitCode {
             out,
             every,
             quiet,
-        } => {
-            let every_ms = match every.as_deref().map(units::parse_duration_ms) {
-                None => 0,
-                Some(Ok(ms)) => ms,
-                Some(Err(e)) => {
-                    eprintln!("error: --every: {e}");
-                    return ExitCode::from(2);
-                }
-            };
-            run_replay(&config, &log, lab.as_deref(), &out, every_ms, quiet)
-        }
+        } => run_replay(&config, &log, lab.as_deref(), &out, every.as_deref(), quiet),
         Command::Live {
             config,
             out,

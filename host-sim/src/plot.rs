@@ -1,12 +1,16 @@
 //! Dependency-free SVG line charts for replay reports.
 //!
 //! A [`Figure`] is a title, one or more stacked [`Panel`]s that share one x
-//! axis (hours since the replay start, see [`time_axis_label`]) and a footer
-//! of small text. Each panel has one y axis whose label carries the unit,
-//! line [`Series`], scatter [`Markers`] (lab results: open circles labelled
-//! with their value), shaded x-ranges ([`Band`]) and horizontal reference
-//! lines. Legends sit above each panel, right-aligned, so they never cover
-//! data.
+//! axis and a footer of small text. The x axis is clock time when the
+//! figure has a [`Clock`] (x values are then ms since the Unix epoch, ticks
+//! fall on round local times: seconds to months as the span needs, the date
+//! under the first tick of each day) and a plain number axis otherwise.
+//! Each panel has one y axis whose label carries the unit, line [`Series`]
+//! (optionally with a shaded ±1σ band, [`Series::with_sigma_band`]),
+//! scatter [`Markers`] (lab results: open circles labelled with their
+//! value), shaded x-ranges ([`Band`], one fixed fill per [`Shade`]) and
+//! horizontal reference lines. Legends sit above each panel, right-aligned,
+//! so they never cover data; they list only what the panel draws.
 //!
 //! # Output
 //! The SVG is UTF-8 (declared in the XML prologue), every piece of text is
@@ -29,6 +33,10 @@
 //! remembered as a break between the two kept points around it, so a gap
 //! stays visible after any amount of merging.
 //!
+//! A series with a ±1σ band keeps two more such series (`y + σ` and
+//! `y − σ`, pushed in step with the line, so their buckets and gaps match),
+//! three times the bound in all.
+//!
 //! [`Markers`] keep at most [`MAX_MARKERS`] points; past that they keep every
 //! second one (a stride that doubles), which is plenty for lab results.
 //!
@@ -36,11 +44,17 @@
 //! [`Color`] is the 8-colour Okabe–Ito palette (Okabe & Ito, "Color
 //! Universal Design", 2008), which stays distinguishable under the common
 //! forms of colour blindness. Yellow comes last: it is weak on white.
+//! Shaded windows take their fill from the [`Shade`] table, never from the
+//! order they appear in.
+//!
+//! Element ids (clip paths, panels) start with [`Figure::id`], so several
+//! figures can be inlined in one HTML page.
 
 mod axis;
 mod legend;
 mod markup;
 mod series;
+mod shade;
 mod svg;
 #[cfg(test)]
 mod tests;
@@ -48,6 +62,8 @@ mod tests;
 use std::path::Path;
 
 pub use self::series::{Markers, Series};
+pub use self::shade::Shade;
+use crate::clock::Clock;
 
 /// Default bucket bound of a [`Series`]: at most `4 × MAX_BUCKETS` points.
 pub const MAX_BUCKETS: usize = 2000;
@@ -115,25 +131,22 @@ pub fn time_axis_label(start_iso: &str) -> String {
     format!("time since {start_iso} [h]")
 }
 
-/// A shaded x-range with a legend entry, e.g. a gap in the log.
-#[derive(Clone, Debug, PartialEq)]
+/// A shaded x-range of one [`Shade`] kind, e.g. a gap in the log; its
+/// kind gives its fill and its legend entry.
+#[derive(Clone, Copy, Debug, PartialEq)]
 pub struct Band {
-    /// Start, in x units (hours).
+    /// Start, in x units.
     pub x0: f64,
-    /// End, in x units (hours).
+    /// End, in x units.
     pub x1: f64,
-    /// Legend text; bands with the same label share a colour and an entry.
-    pub label: String,
+    /// What it marks.
+    pub shade: Shade,
 }
 
 impl Band {
     /// A band from `x0` to `x1`.
-    pub fn new(x0: f64, x1: f64, label: &str) -> Self {
-        Band {
-            x0,
-            x1,
-            label: label.to_owned(),
-        }
+    pub fn new(x0: f64, x1: f64, shade: Shade) -> Self {
+        Band { x0, x1, shade }
     }
 }
 
@@ -167,8 +180,14 @@ impl Panel {
 pub struct Figure {
     /// Heading.
     pub title: String,
-    /// Shared x axis label, see [`time_axis_label`].
+    /// Shared x axis label, see [`time_axis_label`]; with a clock, empty
+    /// means `clock time [<zone>]`.
     pub x_label: String,
+    /// With a clock, x values are ms since the Unix epoch and the axis
+    /// shows that clock's local time.
+    pub clock: Option<Clock>,
+    /// Prefix of the SVG's element ids (unique per figure on one page).
+    pub id: String,
     /// Panels, top to bottom (1–4 read best; more are drawn smaller).
     pub panels: Vec<Panel>,
     /// Small text under the chart; wrapped, `\n` starts a new line.

@@ -7,8 +7,9 @@
 //! **the sensor** ([`assemble`] builds it from the plant; it conditions,
 //! steps, corrects and diagnoses — the replay has no per-tick logic of its
 //! own) → **sinks** ([`estimates`]: `estimates.csv`; [`figures`]: SVG
-//! plots; [`record`] and [`summary`]: `summary.json` and the text). SI
-//! units inside; conversion only in the sinks.
+//! plots; [`record`] and [`summary`]: `summary.json` and the text;
+//! [`crate::report`]: `report.html`). SI units inside; conversion only in
+//! the sinks, times on the report's [`Clock`].
 //!
 //! Each row of `estimates.csv` at time `t` is the state at `t` predicted
 //! from everything measured before `t`, with the status of the tick that
@@ -45,10 +46,12 @@ use self::summary::{
     FinalOut, LevelAgreement, LogOut, MeterBias, SpeciesAgreement, Summary, Window,
     BIAS_SIGNIFICANT_MIN, BIAS_SIGNIFICANT_SIGMAS,
 };
+use crate::clock::Clock;
 use crate::digits::Digits;
 use crate::lab::{self, LabError, LabResult};
 use crate::log::{LogError, LogReader};
 use crate::plant::{Plant, ScalarKind};
+use crate::report::{self, Events, Report};
 use crate::text::CAUTION;
 
 /// What to replay and where to put the results.
@@ -62,7 +65,8 @@ pub struct Request<'a> {
     pub lab: Option<&'a Path>,
     /// Output folder (created if missing).
     pub out_dir: &'a Path,
-    /// Write one estimates row every this many ms of plant time (0: every tick).
+    /// Write one estimates row every this many ms of plant time (0: every
+    /// tick); a whole number of ticks (else [`ReplayError::Interval`]).
     pub output_every_ms: u64,
     /// Show a progress indicator on the terminal.
     pub progress: bool,
@@ -103,6 +107,8 @@ pub enum ReplayError {
         /// What is wrong and what to check.
         message: String,
     },
+    /// The interval of `estimates.csv` is not a whole number of ticks.
+    Interval(String),
     /// Writing an output failed.
     Io {
         /// The file being written.
@@ -131,6 +137,7 @@ impl fmt::Display for ReplayError {
                 p.display()
             ),
             ReplayError::Check { path, message } => write!(f, "{}: {message}", path.display()),
+            ReplayError::Interval(m) => write!(f, "estimates interval: {m}"),
             ReplayError::Io { path, error } => write!(f, "{}: {error}", path.display()),
         }
     }
@@ -232,12 +239,15 @@ struct Replay<'a, S, const N: usize, const D: usize> {
     level_error: LevelError,
     bias_names: Vec<String>,
     checks: checks::Checks,
+    clock: Clock,
 }
 
 fn run_typed<S: Scalar, const N: usize, const D: usize>(
     req: &Request<'_>,
 ) -> Result<Outcome, ReplayError> {
     let plant = req.plant;
+    let every = estimates::output_interval(req.output_every_ms, plant.tick_ms)
+        .map_err(ReplayError::Interval)?;
     std::fs::create_dir_all(req.out_dir).map_err(io_err(req.out_dir))?;
     let lab_results: Vec<LabResult> = match req.lab {
         Some(p) => lab::load(p, plant).map_err(ReplayError::Lab)?,
@@ -271,16 +281,25 @@ fn run_typed<S: Scalar, const N: usize, const D: usize>(
         .map(|e| e.bias_meters.iter().map(|m| m.name.clone()).collect())
         .unwrap_or_default();
     let tick = i64::from(plant.tick_ms);
+    // The report's clock: the log's zone, or UTC ([log] report_times).
+    let clock = Clock::from(plant.log.output_zone);
     let mut replay = Replay {
         req,
         t0,
         tick,
-        every: (req.output_every_ms as i64).max(tick),
+        every: i64::try_from(every).unwrap_or(i64::MAX),
         main,
         open,
         labs: Labs::new(plant, lab_results),
         record: Record::new(plant),
-        csv: EstimatesCsv::create(req.out_dir, plant, &bias_names, Digits::of::<S>())?,
+        csv: EstimatesCsv::create(
+            req.out_dir,
+            plant,
+            &bias_names,
+            Digits::of::<S>(),
+            clock.clone(),
+        )?,
+        clock,
         figures: Figures::new(plant, &bias_names),
         geometry: Geometry::new(plant.shape.clone()).map_err(kernel_err(plant))?,
         level_error: LevelError::default(),
@@ -340,7 +359,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
             }
             self.record.tick(t, self.tick, &r, &self.main);
             self.figures
-                .push_outflow(self.hours(t + self.tick), self.tick as f64 / 1000.0, &r);
+                .push_outflow(t + self.tick, self.tick as f64 / 1000.0, &r);
             report = Some(r);
             frame = next;
             t += self.tick;
@@ -387,7 +406,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
             self.level_error.add(open_level - z);
         }
         self.figures.push(
-            x,
+            t,
             &est,
             open.as_ref(),
             measured,
@@ -441,15 +460,27 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
         summary.warnings = std::mem::take(&mut self.checks.warnings);
         summary.verdict = verdict;
         self.csv.finish()?;
-        self.figures.write(
+        let events = Events::collect(stats, &self.record);
+        let plots = self.figures.write(
             req.out_dir,
             plant,
-            self.t0,
+            &self.clock,
             t_end,
-            stats,
-            &self.record,
+            &events,
             self.labs.results(),
         )?;
+        let page = Report {
+            summary: &summary,
+            plant,
+            events: &events,
+            plots: &plots,
+            labs: self.labs.results(),
+            clock: &self.clock,
+            start: self.t0,
+            end: t_end,
+        };
+        let html = req.out_dir.join(report::FILE);
+        page.write(req.out_dir).map_err(io_err(&html))?;
         let json_path = req.out_dir.join("summary.json");
         let json = serde_json::to_string_pretty(&summary).unwrap_or_default() + "\n";
         std::fs::write(&json_path, json).map_err(io_err(&json_path))?;
@@ -545,6 +576,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
         let mut outputs = vec![
             "estimates.csv",
             "summary.json",
+            report::FILE,
             "holdup.svg",
             "concentrations.svg",
             "flows.svg",
@@ -576,6 +608,7 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
             },
             tick_ms: plant.tick_ms,
             time_zone: zone.label().to_string(),
+            estimates_every_ms: u64::try_from(self.every).unwrap_or(0),
             start: zone.iso(self.t0),
             end: zone.iso(t_end),
             ticks: self.record.ticks,

@@ -365,6 +365,8 @@ fn holdup(args: &[&str]) -> std::process::Output {
         .expect("run holdup")
 }
 
+/// Replay with a row of estimates.csv at every tick (the checks compare
+/// each tick with a reference; the default writes one row a minute).
 fn replay(config: &Path, log: &Path, out: &Path) -> std::process::Output {
     let o = holdup(&[
         "replay",
@@ -374,6 +376,8 @@ fn replay(config: &Path, log: &Path, out: &Path) -> std::process::Output {
         log.to_str().expect("utf-8 path"),
         "--out",
         out.to_str().expect("utf-8 path"),
+        "--every",
+        "tick",
         "--quiet",
     ]);
     assert!(
@@ -790,6 +794,34 @@ fn faulty_log_completes_and_reports_every_fault() {
             "{name}"
         );
     }
+    // Shading only where the signal is drawn: the flow tags' flat line and
+    // missing values on the flows panel, not on holdup and level (whose
+    // level tag has the hole, shaded there) nor on the composition.
+    use holdup_sim::plot::Shade;
+    let svg = |f: &str| std::fs::read_to_string(out.join(f)).expect("svg");
+    let fill = |s: Shade| format!("fill=\"{}\"", s.fill());
+    let (flows, holdup, conc) = (
+        svg("flows.svg"),
+        svg("holdup.svg"),
+        svg("concentrations.svg"),
+    );
+    for s in [Shade::FlatLine, Shade::MissingValues, Shade::DataGap] {
+        assert!(flows.contains(&fill(s)), "flows.svg lacks {s:?}");
+        assert!(flows.contains(s.label()), "flows.svg legend lacks {s:?}");
+    }
+    for s in [Shade::FlatLine, Shade::MissingValues] {
+        assert!(!conc.contains(&fill(s)), "concentrations.svg shaded {s:?}");
+    }
+    // The hole is on the analyser AI-1 too: its species' panel.
+    assert!(conc.contains(&fill(Shade::DataGap)));
+    assert!(holdup.contains(&fill(Shade::DataGap)));
+    assert!(!holdup.contains(&fill(Shade::FlatLine)));
+    assert!(!holdup.contains(Shade::FlatLine.label()));
+    // No lab file: no lab legend, and the report says so.
+    assert!(!conc.contains(">lab result<"));
+    let html = std::fs::read_to_string(out.join("report.html")).expect("report.html");
+    assert!(html.contains("No lab file was given"));
+    assert!(html.contains(Shade::FlatLine.label()) && html.contains("FI-2"));
 }
 
 #[test]
@@ -859,6 +891,7 @@ fn demo_writes_everything_into_its_folder() {
         "report/holdup.svg",
         "report/concentrations.svg",
         "report/flows.svg",
+        "report/report.html",
     ] {
         assert!(out.join(f).is_file(), "{f} missing");
     }
@@ -1027,4 +1060,58 @@ fn empty_log_error_names_the_cause_and_the_key() {
     let out = dir.join("ok");
     replay(&cfg, &historian("us-dates.csv"), &out);
     assert_eq!(summary(&out)["start"], "2026-03-02T05:30:00.000Z");
+}
+
+/// `estimates.csv` is thinned to one row a minute unless asked otherwise;
+/// `--every` must be a whole number of ticks. The step fixture: 1 h at a
+/// 10 s tick from 2026-03-01T05:00:00Z (hand computed above, `T0`).
+#[test]
+fn estimates_are_thinned_by_default_and_every_must_be_whole_ticks() {
+    let cfg = fixture("step").join("plant.toml");
+    let log = fixture("step").join("log.csv");
+    let run = |name: &str, every: Option<&str>| {
+        let out = out_dir(name);
+        let mut args = vec![
+            "replay",
+            "--config",
+            cfg.to_str().expect("utf-8"),
+            "--log",
+            log.to_str().expect("utf-8"),
+            "--out",
+            out.to_str().expect("utf-8"),
+            "--quiet",
+        ];
+        if let Some(e) = every {
+            args.extend(["--every", e]);
+        }
+        (holdup(&args), out)
+    };
+    // Default: 0, 1, ..., 60 min: 61 rows.
+    let (o, out) = run("every-default", None);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let (_, rows) = estimates_text(&out);
+    assert_eq!(rows.len(), 61);
+    assert_eq!(rows[0][0], "2026-03-01T05:00:00.000Z");
+    assert_eq!(rows[1][0], "2026-03-01T05:01:00.000Z");
+    assert_eq!(rows[60][0], "2026-03-01T06:00:00.000Z");
+    let s = summary(&out);
+    assert_eq!(s["estimates_every_ms"], 60_000);
+    let stdout = String::from_utf8_lossy(&o.stdout);
+    assert!(stdout.contains("one row every 1 min (6 ticks)"), "{stdout}");
+    // Every 20 s (two ticks): 181 rows.
+    let (o, out) = run("every-20s", Some("20 s"));
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert_eq!(estimates_text(&out).1.len(), 181);
+    // 15 s is one and a half ticks: refused before anything is written.
+    let (o, out) = run("every-15s", Some("15 s"));
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains("--every \"15 s\""), "{err}");
+    assert!(
+        err.contains("15000 ms") && err.contains("10000 ms"),
+        "{err}"
+    );
+    assert!(!out.exists(), "nothing written");
+    let (o, _) = run("every-0", Some("0 s"));
+    assert_eq!(o.status.code(), Some(2));
 }

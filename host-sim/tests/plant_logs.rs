@@ -254,7 +254,7 @@ fn replay(config: &str, log: &str, out: &Path) -> Output {
         .arg(fixture(log))
         .arg("--out")
         .arg(out)
-        .args(["--every", "10 s", "--quiet"])
+        .args(["--every", "tick", "--quiet"])
         .output()
         .expect("run holdup")
 }

@@ -577,6 +577,8 @@ fn run(trial: Trial) -> &'static Run {
             .arg(&d.lab)
             .arg("--out")
             .arg(&out)
+            // Every tick: the checks follow the estimate second by second.
+            .args(["--every", "tick"])
             .arg("--quiet")
             .output()
             .expect("run holdup");

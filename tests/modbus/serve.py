@@ -278,7 +278,7 @@ def agreement(holdup, tmp, order):
     rep = tmp / "replay"
     subprocess.run([str(holdup), "replay", "--config", str(FIXTURE / "plant.toml"), "--log",
                     str(FIXTURE / "log.csv"), "--lab", str(FIXTURE / "lab.csv"), "--out", str(rep),
-                    "-q"], check=True, stdout=subprocess.DEVNULL)
+                    "--every", "tick", "-q"], check=True, stdout=subprocess.DEVNULL)
     with open(rep / "estimates.csv", newline="") as f:
         estimates = list(csv.DictReader(f))
     subprocess.run([str(holdup), "registers", "--config", str(FIXTURE / "plant.toml"), "--out",

@@ -1,7 +1,10 @@
 //! Axes: the data range of each panel (and the shared x range), "nice"
-//! tick steps and the labels of ticks and values.
+//! tick steps and the labels of ticks and values; the clock-time axis with
+//! ticks at round local times.
 
 use super::{Panel, LIMIT};
+use crate::clock::Clock;
+use chrono::{Datelike, NaiveDate};
 
 /// Running min/max of finite values, clamped to ±LIMIT.
 #[derive(Clone, Copy, Debug)]
@@ -39,6 +42,9 @@ pub(super) struct Axis {
     pub(super) step: f64,
     pub(super) ticks: Vec<f64>,
     pub(super) labels: Vec<String>,
+    /// Second line under the tick labels of a clock axis (the date; drawn
+    /// where it changes), empty for a number axis.
+    pub(super) dates: Vec<String>,
 }
 
 impl Axis {
@@ -139,7 +145,158 @@ pub(super) fn nice_axis(range: Range, target: usize, slack: f64, pad: f64) -> Ax
         step,
         ticks,
         labels,
+        dates: Vec::new(),
     }
+}
+
+const SECOND: i64 = 1000;
+const MINUTE: i64 = 60 * SECOND;
+const HOUR: i64 = 60 * MINUTE;
+const DAY: i64 = 24 * HOUR;
+
+/// Tick steps of a clock axis up to a week, ms; each below a day divides a
+/// day, so ticks fall on the same local times every day.
+const CLOCK_STEPS: [i64; 20] = [
+    SECOND,
+    2 * SECOND,
+    5 * SECOND,
+    10 * SECOND,
+    15 * SECOND,
+    30 * SECOND,
+    MINUTE,
+    2 * MINUTE,
+    5 * MINUTE,
+    10 * MINUTE,
+    15 * MINUTE,
+    30 * MINUTE,
+    HOUR,
+    2 * HOUR,
+    3 * HOUR,
+    6 * HOUR,
+    12 * HOUR,
+    DAY,
+    2 * DAY,
+    7 * DAY,
+];
+
+/// Month steps past a week.
+const MONTH_STEPS: [i64; 5] = [1, 2, 3, 6, 12];
+
+/// A clock axis over `range` (ms since the epoch, UTC) with at most
+/// `target` intervals: ticks at round local times of `clock` (whole
+/// seconds, minutes, hours, local midnights, Mondays for weekly ticks, the
+/// first of a month), labels `HH:MM` (`HH:MM:SS` below a minute), `02 Mar`
+/// for days, `Mar` for months; `dates` holds the line under them (the date,
+/// or the year for day and month ticks). The limits are the data's own.
+pub(super) fn clock_axis(range: Range, target: usize, clock: &Clock) -> Axis {
+    let (lo, hi) = if range.is_empty() {
+        (0.0, HOUR as f64)
+    } else if range.hi - range.lo < 1.0 {
+        (
+            range.lo - 30.0 * MINUTE as f64,
+            range.hi + 30.0 * MINUTE as f64,
+        )
+    } else {
+        (range.lo, range.hi)
+    };
+    let target = target.max(2) as f64;
+    let span = hi - lo;
+    let step = CLOCK_STEPS
+        .iter()
+        .copied()
+        .find(|&s| span / s as f64 <= target);
+    let (lo_i, hi_i) = (lo.floor() as i64, hi.ceil() as i64);
+    let local_lo = lo_i + i64::from(clock.offset_seconds(lo_i)) * SECOND;
+    let mut ticks: Vec<f64> = Vec::new();
+    let push = |local: i64, ticks: &mut Vec<f64>| {
+        let t = clock.instant_of_local(local) as f64;
+        if t >= lo && t <= hi && ticks.last().is_none_or(|&l| t > l) {
+            ticks.push(t);
+        }
+    };
+    let step_ms = match step {
+        Some(s) => {
+            // Weekly ticks on Mondays (1970-01-05 was one).
+            let phase = if s == 7 * DAY { 4 * DAY } else { 0 };
+            let mut local = (local_lo - phase).div_euclid(s) * s + phase;
+            for _ in 0..400 {
+                if local > local_lo + (hi_i - lo_i) + DAY {
+                    break;
+                }
+                push(local, &mut ticks);
+                local += s;
+            }
+            s
+        }
+        None => {
+            let months = span / (30.44 * DAY as f64);
+            let m = MONTH_STEPS
+                .iter()
+                .copied()
+                .find(|&m| months / m as f64 <= target)
+                .unwrap_or_else(|| 12 * ((months / 12.0 / target).ceil() as i64).max(1));
+            let start = clock
+                .local(lo_i)
+                .map(|d| d.date())
+                .unwrap_or(NaiveDate::MIN);
+            let mut idx = i64::from(start.year()) * 12 + i64::from(start.month0());
+            idx = idx.div_euclid(m) * m;
+            for _ in 0..400 {
+                let (y, mo) = (idx.div_euclid(12), idx.rem_euclid(12) as u32 + 1);
+                let Some(d) = i32::try_from(y)
+                    .ok()
+                    .and_then(|y| NaiveDate::from_ymd_opt(y, mo, 1))
+                else {
+                    break;
+                };
+                let local = d
+                    .and_hms_opt(0, 0, 0)
+                    .map_or(i64::MAX, |d| d.and_utc().timestamp_millis());
+                if local > local_lo + (hi_i - lo_i) + DAY {
+                    break;
+                }
+                push(local, &mut ticks);
+                idx += m;
+            }
+            m * 30 * DAY
+        }
+    };
+    let (label_fmt, date_fmt) = if step_ms < MINUTE {
+        ("%H:%M:%S", "%Y-%m-%d")
+    } else if step_ms < DAY {
+        ("%H:%M", "%Y-%m-%d")
+    } else if step_ms < 28 * DAY {
+        ("%d %b", "%Y")
+    } else {
+        ("%b", "%Y")
+    };
+    let mut labels = Vec::with_capacity(ticks.len());
+    let mut dates = Vec::with_capacity(ticks.len());
+    for &t in &ticks {
+        match clock.local(t as i64) {
+            Some(d) => {
+                labels.push(d.format(label_fmt).to_string());
+                dates.push(d.format(date_fmt).to_string());
+            }
+            None => {
+                labels.push(String::new());
+                dates.push(String::new());
+            }
+        }
+    }
+    Axis {
+        lo,
+        hi,
+        step: step_ms as f64,
+        ticks,
+        labels,
+        dates,
+    }
+}
+
+/// The label of a clock axis: `clock time [UTC]`.
+pub(super) fn clock_label(clock: &Clock, at: f64) -> String {
+    format!("clock time [{}]", clock.describe(at as i64))
 }
 
 /// Label of tick `v` on an axis whose step has decimal exponent `e`.
@@ -195,7 +352,7 @@ pub(super) fn value_label(v: f64) -> String {
 pub(super) fn y_range(p: &Panel) -> Range {
     let mut r = Range::new();
     for s in &p.series {
-        for pt in s.points() {
+        for pt in s.points().chain(s.sigma_points()) {
             r.add(pt.y);
         }
     }

@@ -1,17 +1,21 @@
 //! Legends: the entries of a panel (lines, markers, bands), laid out in
-//! right-aligned rows above it, and their swatches.
+//! right-aligned rows above it, and their swatches. Only what the panel
+//! draws is listed: a line or a set of markers with no point kept has no
+//! entry, and shaded kinds come once each, in the [`Shade`] table's order.
 
 use std::fmt::Write as _;
 
 use super::markup::{text_w, N};
-use super::svg::{BAND_FILLS, BAND_OPACITY, LABEL_FS, LEGEND_FS, PAD, SWATCH_W};
-use super::Color;
+use super::svg::{LABEL_FS, LEGEND_FS, PAD, SIGMA_OPACITY, SWATCH_W};
 use super::Panel;
+use super::{Color, Shade};
 
 pub(super) enum Swatch {
     Line(Color),
+    /// A line over its ±1σ band.
+    LineBand(Color),
     Dot(Color),
-    Band(usize),
+    Band(Shade),
 }
 
 pub(super) struct Item<'a> {
@@ -27,32 +31,31 @@ impl Item<'_> {
 
 /// Legend items of a panel and their rows (right-aligned). Row 0 shares the
 /// line with the y label, so it has less room.
-pub(super) fn legend_rows<'a>(
-    panel: &'a Panel,
-    band_labels: &[&str],
-    right: f64,
-) -> (Vec<Item<'a>>, Vec<Vec<usize>>) {
+pub(super) fn legend_rows(panel: &Panel, right: f64) -> (Vec<Item<'_>>, Vec<Vec<usize>>) {
     let mut items = Vec::new();
-    for s in &panel.series {
-        items.push(Item {
-            swatch: Swatch::Line(s.color),
-            text: &s.name,
+    for s in panel.series.iter().filter(|s| s.kept() > 0) {
+        items.push(match s.sigma_kept() {
+            0 => Item {
+                swatch: Swatch::Line(s.color),
+                text: &s.name,
+            },
+            _ => Item {
+                swatch: Swatch::LineBand(s.color),
+                text: &s.band_name,
+            },
         });
     }
-    for m in &panel.markers {
+    for m in panel.markers.iter().filter(|m| m.kept() > 0) {
         items.push(Item {
             swatch: Swatch::Dot(m.color),
             text: &m.name,
         });
     }
-    let mut seen: Vec<&str> = Vec::new();
-    for b in &panel.bands {
-        if !seen.contains(&b.label.as_str()) {
-            seen.push(&b.label);
-            let k = band_labels.iter().position(|l| *l == b.label).unwrap_or(0);
+    for shade in Shade::ALL {
+        if panel.bands.iter().any(|b| b.shade == shade) {
             items.push(Item {
-                swatch: Swatch::Band(k),
-                text: &b.label,
+                swatch: Swatch::Band(shade),
+                text: shade.label(),
             });
         }
     }
@@ -89,6 +92,17 @@ pub(super) fn draw_swatch(out: &mut String, sw: &Swatch, x: f64, ymid: f64) {
                 c.hex()
             );
         }
+        Swatch::LineBand(c) => {
+            let _ = writeln!(
+                out,
+                r#"<rect x="{}" y="{}" width="{}" height="10" fill="{}" fill-opacity="{SIGMA_OPACITY}"/>"#,
+                N(x),
+                N(ymid - 5.0),
+                N(SWATCH_W),
+                c.hex()
+            );
+            draw_swatch(out, &Swatch::Line(c), x, ymid);
+        }
         Swatch::Dot(c) => {
             let _ = writeln!(
                 out,
@@ -98,14 +112,15 @@ pub(super) fn draw_swatch(out: &mut String, sw: &Swatch, x: f64, ymid: f64) {
                 c.hex()
             );
         }
-        Swatch::Band(k) => {
+        Swatch::Band(shade) => {
             let _ = writeln!(
                 out,
-                r##"<rect x="{}" y="{}" width="{}" height="10" fill="{}" fill-opacity="{BAND_OPACITY}" stroke="#999999" stroke-width="0.5"/>"##,
+                r##"<rect x="{}" y="{}" width="{}" height="10" fill="{}" fill-opacity="{}" stroke="#999999" stroke-width="0.5"/>"##,
                 N(x + 2.0),
                 N(ymid - 5.0),
                 N(SWATCH_W - 4.0),
-                BAND_FILLS[k % BAND_FILLS.len()]
+                shade.fill(),
+                Shade::OPACITY
             );
         }
     }

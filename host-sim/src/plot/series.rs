@@ -82,7 +82,12 @@ impl Bucket {
 #[derive(Clone, Debug)]
 pub struct Series {
     pub(super) name: String,
+    /// The legend text when the ±1σ band is drawn.
+    pub(super) band_name: String,
     pub(super) color: Color,
+    /// `y + σ` and `y − σ`, pushed in step with the line (see
+    /// [`Series::with_sigma_band`]).
+    pub(super) sigma: Option<Box<[Series; 2]>>,
     pub(super) buckets: Vec<Bucket>,
     pub(super) max_buckets: usize,
     pub(super) per_bucket: u64,
@@ -101,13 +106,42 @@ impl Series {
     pub fn with_max_buckets(name: &str, color: Color, max_buckets: usize) -> Self {
         Series {
             name: name.to_owned(),
+            band_name: format!("{name} ± 1σ"),
             color,
+            sigma: None,
             buckets: Vec::new(),
             max_buckets: max_buckets.max(2),
             per_bucket: 1,
             pushed: 0,
             pending_break: false,
         }
+    }
+
+    /// The same series with a shaded ±1σ band, fed by
+    /// [`Series::push_with_sigma`]; the band is bounded like the line.
+    pub fn with_sigma_band(mut self) -> Self {
+        let edge = Series::with_max_buckets("", self.color, self.max_buckets);
+        self.sigma = Some(Box::new([edge.clone(), edge]));
+        self
+    }
+
+    /// Adds a sample with its 1σ: the line as [`Series::push`], and the band
+    /// (if the series has one) from `y − σ` to `y + σ`. A non-finite or
+    /// negative σ leaves a gap in the band, not in the line.
+    pub fn push_with_sigma(&mut self, x: f64, y: f64, sigma: f64) {
+        self.push(x, y);
+        if let Some(edges) = self.sigma.as_deref_mut() {
+            let (hi, lo) = (y + sigma, y - sigma);
+            let ok = sigma >= 0.0 && hi.is_finite() && lo.is_finite();
+            let (hi, lo) = if ok { (hi, lo) } else { (f64::NAN, f64::NAN) };
+            edges[0].push(x, hi);
+            edges[1].push(x, lo);
+        }
+    }
+
+    /// Points kept for the ±1σ band's upper edge (0 without a band).
+    pub fn sigma_kept(&self) -> usize {
+        self.sigma.as_deref().map_or(0, |e| e[0].kept())
     }
 
     /// Adds a sample. A non-finite `x` or `y` is a gap: the line is broken
@@ -181,6 +215,34 @@ impl Series {
 
     pub(super) fn points(&self) -> impl Iterator<Item = Pt> + '_ {
         self.buckets.iter().flat_map(|b| b.points().iter().copied())
+    }
+
+    /// The kept points of both edges of the ±1σ band (none without one).
+    pub(super) fn sigma_points(&self) -> impl Iterator<Item = Pt> + '_ {
+        self.sigma
+            .as_deref()
+            .into_iter()
+            .flat_map(|e| e.iter().flat_map(|s| s.points()))
+    }
+
+    /// The band's unbroken runs: upper and lower edge points of each.
+    pub(super) fn sigma_runs(&self) -> Vec<(Vec<Pt>, Vec<Pt>)> {
+        let Some(e) = self.sigma.as_deref() else {
+            return Vec::new();
+        };
+        let runs = |s: &Series| {
+            let mut out: Vec<Vec<Pt>> = Vec::new();
+            for p in s.points() {
+                if p.brk || out.is_empty() {
+                    out.push(Vec::new());
+                }
+                if let Some(last) = out.last_mut() {
+                    last.push(p);
+                }
+            }
+            out
+        };
+        runs(&e[0]).into_iter().zip(runs(&e[1])).collect()
     }
 }
 

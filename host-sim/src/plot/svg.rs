@@ -5,11 +5,11 @@
 
 use std::fmt::Write as _;
 
-use super::axis::{nice_axis, value_label, x_range, y_range, Axis};
+use super::axis::{clock_axis, clock_label, nice_axis, value_label, x_range, y_range, Axis};
 use super::legend::{draw_swatch, legend_rows, Item};
 use super::markup::{push_esc, text, text_w, wrap, HALO, N};
-use super::series::Series;
-use super::{Figure, Panel};
+use super::series::{Pt, Series};
+use super::{Figure, Panel, Shade};
 
 pub(super) const W: f64 = 960.0;
 pub(super) const PAD: f64 = 14.0;
@@ -31,10 +31,11 @@ pub(super) const Y_PAD: f64 = 0.03;
 pub(super) const X_SLACK: f64 = 0.1;
 /// Most markers in a panel that still get value labels.
 pub(super) const MAX_VALUE_LABELS: usize = 40;
+/// Height of the date line under a clock axis' tick labels.
+pub(super) const DATE_LINE: f64 = 14.0;
 
-/// Light fills for bands, by first appearance of the label in the figure.
-pub(super) const BAND_FILLS: [&str; 4] = ["#b0b0b0", "#f0d96b", "#9ecae1", "#e7a6c8"];
-pub(super) const BAND_OPACITY: &str = "0.45";
+/// Opacity of a series' ±1σ band (in the series' colour).
+pub(super) const SIGMA_OPACITY: &str = "0.18";
 
 pub(super) fn plot_height(panels: usize) -> f64 {
     match panels {
@@ -57,8 +58,8 @@ struct Layout<'a> {
     /// Plot width.
     pw: f64,
     xaxis: Axis,
-    /// Band labels in order of first appearance (their colour index).
-    band_labels: Vec<&'a str>,
+    /// The x axis label.
+    x_label: String,
     /// Legend entries and rows of each panel.
     legends: Vec<(Vec<Item<'a>>, Vec<Vec<usize>>)>,
     footer_lines: Vec<String>,
@@ -82,25 +83,27 @@ impl<'a> Layout<'a> {
         let left = (PAD + widest + 10.0).max(52.0).round();
         let right = W - 26.0;
         let pw = right - left;
-        let xaxis = nice_axis(
-            x_range(panels),
-            ((pw / 100.0) as usize).clamp(3, 12),
-            X_SLACK,
-            0.0,
-        );
-
-        let mut band_labels: Vec<&str> = Vec::new();
-        for p in panels {
-            for b in &p.bands {
-                if !band_labels.contains(&b.label.as_str()) {
-                    band_labels.push(&b.label);
-                }
+        let (xaxis, x_label) = match &fig.clock {
+            Some(c) => {
+                let a = clock_axis(x_range(panels), ((pw / 90.0) as usize).clamp(3, 12), c);
+                let label = if fig.x_label.is_empty() {
+                    clock_label(c, a.lo)
+                } else {
+                    fig.x_label.clone()
+                };
+                (a, label)
             }
-        }
-        let legends: Vec<_> = panels
-            .iter()
-            .map(|p| legend_rows(p, &band_labels, right))
-            .collect();
+            None => (
+                nice_axis(
+                    x_range(panels),
+                    ((pw / 100.0) as usize).clamp(3, 12),
+                    X_SLACK,
+                    0.0,
+                ),
+                fig.x_label.clone(),
+            ),
+        };
+        let legends: Vec<_> = panels.iter().map(|p| legend_rows(p, right)).collect();
 
         let footer_lines = wrap(&fig.footer, ((W - 2.0 * PAD) / (SMALL_FS * 0.6)) as usize);
         let title_h = if fig.title.trim().is_empty() {
@@ -113,6 +116,9 @@ impl<'a> Layout<'a> {
             height += rows.len() as f64 * ROW_H + 6.0 + ph + 12.0;
         }
         height += 50.0 + footer_lines.len() as f64 * 14.0 + 6.0;
+        if !xaxis.dates.is_empty() {
+            height += DATE_LINE;
+        }
         let height = height.round();
         Layout {
             ph,
@@ -121,7 +127,7 @@ impl<'a> Layout<'a> {
             right,
             pw,
             xaxis,
-            band_labels,
+            x_label,
             legends,
             footer_lines,
             title_h,
@@ -167,19 +173,18 @@ pub(super) fn render(fig: &Figure) -> String {
     let mut cursor = layout.title_h;
     let mut bottom = cursor;
     for (pi, (panel, yaxis)) in panels.iter().zip(&layout.yaxes).enumerate() {
-        bottom = draw_panel(&mut out, &layout, pi, panel, yaxis, cursor);
+        bottom = draw_panel(&mut out, &layout, (&fig.id, pi), panel, yaxis, cursor);
         cursor = bottom + 12.0;
     }
-    draw_x_axis(&mut out, &layout, bottom, &fig.x_label);
+    draw_x_axis(&mut out, &layout, bottom);
     let foot_attrs = format!(r##" font-size="{SMALL_FS}" fill="#555555""##);
+    let foot_top = if layout.xaxis.dates.is_empty() {
+        bottom + 60.0
+    } else {
+        bottom + 60.0 + DATE_LINE
+    };
     for (i, line) in layout.footer_lines.iter().enumerate() {
-        text(
-            &mut out,
-            PAD,
-            bottom + 60.0 + i as f64 * 14.0,
-            &foot_attrs,
-            line,
-        );
+        text(&mut out, PAD, foot_top + i as f64 * 14.0, &foot_attrs, line);
     }
     out.push_str("</svg>\n");
     out
@@ -210,12 +215,12 @@ fn draw_head(out: &mut String, title: &str, height: f64) {
     }
 }
 
-/// Panel `pi` from `cursor` down: its header, plot, labels and y ticks.
-/// Returns the bottom of its plot area.
+/// Panel `pi` of the figure with id prefix `id` from `cursor` down: its
+/// header, plot, labels and y ticks. Returns the bottom of its plot area.
 fn draw_panel(
     out: &mut String,
     layout: &Layout<'_>,
-    pi: usize,
+    (id, pi): (&str, usize),
     panel: &Panel,
     yaxis: &Axis,
     cursor: f64,
@@ -232,7 +237,9 @@ fn draw_panel(
         xaxis: &layout.xaxis,
         yaxis,
     };
-    let _ = writeln!(out, r#"<g id="panel{pi}">"#);
+    out.push_str("<g id=\"");
+    push_esc(out, id);
+    let _ = writeln!(out, r#"panel{pi}">"#);
 
     // Header: y label left, legend rows right-aligned.
     let label_attrs = format!(r##" font-size="{LABEL_FS}" font-weight="bold" fill="#222222""##);
@@ -249,7 +256,7 @@ fn draw_panel(
         }
     }
 
-    draw_plot(out, &area, pi, panel, &layout.band_labels);
+    draw_plot(out, &area, (id, pi), panel);
     let visible: usize = panel.markers.iter().map(|m| m.pts.len()).sum();
     draw_labels(out, &area, panel, visible <= MAX_VALUE_LABELS);
 
@@ -273,37 +280,40 @@ fn draw_panel(
 
 /// Inside the panel's clip: bands, grid, frame, reference lines, lines and
 /// markers, in that order (later ones on top).
-fn draw_plot(out: &mut String, area: &Area<'_>, pi: usize, panel: &Panel, band_labels: &[&str]) {
+fn draw_plot(out: &mut String, area: &Area<'_>, (id, pi): (&str, usize), panel: &Panel) {
     let (left, right, top, bottom) = (area.left, area.right, area.top, area.bottom);
     // Every sample lies inside the axis limits, so the clip is only a
     // safety net; it is a little larger than the frame so that a line
     // or marker on a limit is drawn whole.
+    let mut clip = String::new();
+    push_esc(&mut clip, id);
+    let _ = write!(clip, "clip{pi}");
     let _ = writeln!(
         out,
-        r#"<clipPath id="clip{pi}"><rect x="{}" y="{}" width="{}" height="{}"/></clipPath>"#,
+        r#"<clipPath id="{clip}"><rect x="{}" y="{}" width="{}" height="{}"/></clipPath>"#,
         N(left - CLIP_MARGIN),
         N(top - CLIP_MARGIN),
         N(area.pw + 2.0 * CLIP_MARGIN),
         N(area.ph + 2.0 * CLIP_MARGIN)
     );
-    let _ = writeln!(out, r#"<g clip-path="url(#clip{pi})">"#);
+    let _ = writeln!(out, r#"<g clip-path="url(#{clip})">"#);
 
-    // Bands under everything.
+    // Bands under everything, each kind in its fixed fill.
     for b in &panel.bands {
         if !(b.x0.is_finite() && b.x1.is_finite()) {
             continue;
         }
         let (a, c) = (area.x(b.x0.min(b.x1)), area.x(b.x0.max(b.x1)));
         let w = (c - a).max(1.5);
-        let k = band_labels.iter().position(|l| *l == b.label).unwrap_or(0);
         let _ = writeln!(
             out,
-            r#"<rect x="{}" y="{}" width="{}" height="{}" fill="{}" fill-opacity="{BAND_OPACITY}"/>"#,
+            r#"<rect x="{}" y="{}" width="{}" height="{}" fill="{}" fill-opacity="{}"/>"#,
             N(a),
             N(top),
             N(w),
             N(area.ph),
-            BAND_FILLS[k % BAND_FILLS.len()]
+            b.shade.fill(),
+            Shade::OPACITY
         );
     }
 
@@ -359,7 +369,10 @@ fn draw_plot(out: &mut String, area: &Area<'_>, pi: usize, panel: &Panel, band_l
         }
     }
 
-    // Lines.
+    // ±1σ bands, then the lines over them.
+    for s in &panel.series {
+        draw_sigma(out, s, &|v| area.x(v), &|v| area.y(v));
+    }
     for s in &panel.series {
         draw_series(out, s, &|v| area.x(v), &|v| area.y(v));
     }
@@ -449,7 +462,7 @@ fn draw_y_ticks(out: &mut String, area: &Area<'_>) {
 
 /// The shared x axis under the last panel (whose plot ends at `bottom`):
 /// tick marks, thinned labels and the axis label.
-fn draw_x_axis(out: &mut String, layout: &Layout<'_>, bottom: f64, x_label: &str) {
+fn draw_x_axis(out: &mut String, layout: &Layout<'_>, bottom: f64) {
     let (xaxis, left, right, pw) = (&layout.xaxis, layout.left, layout.right, layout.pw);
     let xspacing = if xaxis.ticks.len() > 1 {
         xaxis.step / (xaxis.hi - xaxis.lo) * pw
@@ -465,8 +478,17 @@ fn draw_x_axis(out: &mut String, layout: &Layout<'_>, bottom: f64, x_label: &str
         .ceil()
         .clamp(1.0, 1e6) as usize;
     let xtick_attrs = format!(r##" font-size="{TICK_FS}" fill="#444444" text-anchor="middle""##);
+    let mut last_date: Option<&str> = None;
     for (i, (&t, l)) in xaxis.ticks.iter().zip(&xaxis.labels).enumerate() {
         if i % every == 0 {
+            // The date under the first drawn tick and wherever it changes.
+            if let Some(d) = xaxis.dates.get(i) {
+                if last_date != Some(d.as_str()) {
+                    let x = xaxis.map(t, left, right);
+                    text(out, x, bottom + 17.0 + DATE_LINE, &xtick_attrs, d);
+                    last_date = Some(d);
+                }
+            }
             let x = xaxis.map(t, left, right);
             let _ = writeln!(
                 out,
@@ -480,12 +502,49 @@ fn draw_x_axis(out: &mut String, layout: &Layout<'_>, bottom: f64, x_label: &str
         }
     }
     let xl_attrs = format!(r##" font-size="{LABEL_FS}" fill="#222222" text-anchor="middle""##);
-    text(out, left + pw / 2.0, bottom + 37.0, &xl_attrs, x_label);
+    let y = if xaxis.dates.is_empty() {
+        bottom + 37.0
+    } else {
+        bottom + 37.0 + DATE_LINE
+    };
+    text(out, left + pw / 2.0, y, &xl_attrs, &layout.x_label);
 }
 
 /// Whether two boxes `[x0, y0, x1, y1]` overlap.
 fn overlaps(a: &[f64; 4], b: &[f64; 4]) -> bool {
     a[0] < b[2] && b[0] < a[2] && a[1] < b[3] && b[1] < a[3]
+}
+
+/// The ±1σ band of `s`: one polygon per unbroken run, the upper edge left
+/// to right and the lower edge back, in the series' colour.
+fn draw_sigma(out: &mut String, s: &Series, xm: &dyn Fn(f64) -> f64, ym: &dyn Fn(f64) -> f64) {
+    let runs = s.sigma_runs();
+    if runs.is_empty() {
+        return;
+    }
+    let _ = writeln!(
+        out,
+        r#"<g fill="{}" fill-opacity="{SIGMA_OPACITY}" stroke="none">"#,
+        s.color.hex()
+    );
+    let pt = |out: &mut String, p: &Pt| {
+        let _ = write!(out, "{},{} ", N(xm(p.x)), N(ym(p.y)));
+    };
+    for (hi, lo) in runs {
+        if hi.len() < 2 || lo.len() < 2 {
+            continue;
+        }
+        out.push_str(r#"<polygon points=""#);
+        for p in &hi {
+            pt(out, p);
+        }
+        for p in lo.iter().rev() {
+            pt(out, p);
+        }
+        out.pop();
+        out.push_str("\"/>\n");
+    }
+    out.push_str("</g>\n");
 }
 
 /// One `<polyline>` per unbroken run; a run of one point is a dot.

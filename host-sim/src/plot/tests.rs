@@ -538,8 +538,8 @@ fn example_figure() -> Figure {
     for (t, v) in [(6.0, 22.9), (18.5, 24.42), (42.0, 17.3), (66.25, 22.05)] {
         lab.push(t, v);
     }
-    let gap = Band::new(30.0, 34.0, "gap in log");
-    let flat = Band::new(50.0, 58.0, "flat-lined FI-101");
+    let gap = Band::new(30.0, 34.0, Shade::DataGap);
+    let flat = Band::new(50.0, 58.0, Shade::FlatLine);
     Figure {
         title: "Replay of tank T-1: holdup estimate vs. level and lab".into(),
         x_label: time_axis_label("2024-03-05T06:00:00Z"),
@@ -548,14 +548,14 @@ fn example_figure() -> Figure {
                 y_label: "flow [m³/h]".into(),
                 series: vec![fin, fout],
                 markers: vec![],
-                bands: vec![gap.clone(), flat.clone()],
+                bands: vec![gap, flat],
                 hlines: vec![],
             },
             Panel {
                 y_label: "holdup [m³]".into(),
                 series: vec![est, lvl],
                 markers: vec![lab],
-                bands: vec![gap.clone(), flat],
+                bands: vec![gap, flat],
                 hlines: vec![
                     (28.0, "high limit 28 m³".into()),
                     (12.0, "low limit 12 m³".into()),
@@ -570,6 +570,7 @@ fn example_figure() -> Figure {
             },
         ],
         footer: CAUTION.into(),
+        ..Figure::default()
     }
 }
 
@@ -592,8 +593,8 @@ fn example_figure_is_well_formed_and_complete() {
         "holdup estimate",
         "holdup from level LI-103",
         "lab sample",
-        "gap in log",
-        "flat-lined FI-101",
+        Shade::DataGap.label(),
+        Shade::FlatLine.label(),
         "high limit 28 m³",
         "24.42",
     ] {
@@ -645,9 +646,9 @@ fn hostile_data_never_panics_or_leaks_non_finite_numbers() {
             series: vec![s, Series::new("empty", Color::Yellow)],
             markers: vec![m],
             bands: vec![
-                Band::new(f64::NAN, 1.0, "bad band"),
-                Band::new(2.0, 2.0, "zero-width"),
-                Band::new(3.0, -1.0, "reversed"),
+                Band::new(f64::NAN, 1.0, Shade::DataGap),
+                Band::new(2.0, 2.0, Shade::MoreOutThanIn),
+                Band::new(3.0, -1.0, Shade::InputNotGood),
             ],
             hlines: vec![(f64::NAN, "nan line".into()), (f64::MAX, "max".into())],
         };
@@ -657,6 +658,7 @@ fn hostile_data_never_panics_or_leaks_non_finite_numbers() {
                 x_label: "x".into(),
                 panels,
                 footer: "f\u{0}oot\ner".into(),
+                ..Figure::default()
             };
             let svg = fig.to_svg();
             let (elems, texts) = check_xml(&svg).unwrap_or_else(|e| panic!("case {ci}: {e}"));
@@ -703,7 +705,7 @@ fn legends_wrap_and_many_markers_drop_value_labels() {
         m.push(f64::from(i) / 41.0, 123.456);
     }
     p.markers.push(m);
-    let (items, rows) = legend_rows(&p, &[], W - 26.0);
+    let (items, rows) = legend_rows(&p, W - 26.0);
     assert_eq!(items.len(), 13);
     assert!(rows.len() >= 3);
     for row in &rows {
@@ -717,4 +719,183 @@ fn legends_wrap_and_many_markers_drop_value_labels() {
     .to_svg();
     check_xml(&svg).unwrap();
     assert!(!svg.contains(">123.5<"), "41 markers: no value labels");
+}
+
+/// 2026-03-02T05:00:00Z, ms (the demo's start; demo.rs: 06:00 at UTC+1).
+const T_DEMO: f64 = 1_772_427_600_000.0;
+const H_MS: f64 = 3_600_000.0;
+
+fn range(lo: f64, hi: f64) -> Range {
+    let mut r = Range::new();
+    r.add(lo);
+    r.add(hi);
+    r
+}
+
+#[test]
+fn clock_axis_ticks_fall_on_round_local_times() {
+    use super::axis::clock_axis;
+    use crate::clock::Clock;
+    // 12 h from 05:00 UTC, about 9 intervals: every 2 h on the even hours.
+    let a = clock_axis(range(T_DEMO, T_DEMO + 12.0 * H_MS), 9, &Clock::utc());
+    assert_eq!(
+        a.labels,
+        ["06:00", "08:00", "10:00", "12:00", "14:00", "16:00"]
+    );
+    assert!(a.dates.iter().all(|d| d == "2026-03-02"));
+    assert_eq!(a.ticks[0], T_DEMO + H_MS);
+    assert_eq!((a.lo, a.hi), (T_DEMO, T_DEMO + 12.0 * H_MS));
+    // The same instants at UTC+1: local 06:00 .. 18:00.
+    let cet = Clock::new("Europe/Vienna", |_| 3600);
+    let a = clock_axis(range(T_DEMO, T_DEMO + 12.0 * H_MS), 9, &cet);
+    assert_eq!(
+        a.labels,
+        ["06:00", "08:00", "10:00", "12:00", "14:00", "16:00", "18:00"]
+    );
+    assert_eq!(a.ticks[0], T_DEMO, "local 06:00 is 05:00 UTC");
+    // 39 days: weekly ticks at local midnight on Mondays (2026-03-02 is a
+    // Monday: 20514 days after 1970-01-01, a Thursday; 20514 mod 7 = 4).
+    let a = clock_axis(range(T_DEMO, T_DEMO + 39.0 * 24.0 * H_MS), 9, &cet);
+    assert_eq!(a.labels[0], "09 Mar");
+    assert_eq!(a.labels.len(), 5, "{:?}", a.labels);
+    assert!(a.dates.iter().all(|d| d == "2026"));
+    let midnight = T_DEMO + 7.0 * 24.0 * H_MS - 6.0 * H_MS;
+    assert_eq!(a.ticks[0], midnight, "09 Mar 00:00 at UTC+1");
+    // A year, about 9 intervals: every second month on the first of odd
+    // months (12 / 2 = 6 intervals; monthly would be 12), from May (the
+    // first of March 2026 is before the start) to March 2027 (365 days on
+    // is 2027-03-02).
+    let a = clock_axis(
+        range(T_DEMO, T_DEMO + 365.0 * 24.0 * H_MS),
+        9,
+        &Clock::utc(),
+    );
+    assert_eq!(a.labels, ["May", "Jul", "Sep", "Nov", "Jan", "Mar"]);
+    assert_eq!(a.dates, ["2026", "2026", "2026", "2026", "2027", "2027"]);
+}
+
+#[test]
+fn clock_axis_across_a_change_of_offset_stays_increasing() {
+    use super::axis::clock_axis;
+    use crate::clock::Clock;
+    // EU summer time 2026 starts 2026-03-29T01:00Z (Directive 2000/84/EC).
+    const SWITCH: i64 = 1_774_746_000_000;
+    let c = Clock::new("Europe/Vienna", |ms| if ms < SWITCH { 3600 } else { 7200 });
+    let lo = SWITCH as f64 - 6.0 * H_MS;
+    let a = clock_axis(range(lo, lo + 12.0 * H_MS), 12, &c);
+    assert!(a.ticks.windows(2).all(|w| w[1] > w[0]), "{:?}", a.ticks);
+    // Local 02:00 does not exist that night: 01:00 then 03:00.
+    let i = a.labels.iter().position(|l| l == "01:00").expect("01:00");
+    assert_eq!(a.labels[i + 1], "03:00", "{:?}", a.labels);
+    assert_eq!(a.ticks[i + 1] - a.ticks[i], H_MS);
+}
+
+#[test]
+fn sigma_bands_are_drawn_bounded_and_named() {
+    let mut s = Series::with_max_buckets("holdup", Color::Blue, 50).with_sigma_band();
+    for i in 0..10_000 {
+        let x = f64::from(i);
+        // No σ for the first 100 samples: the line but no band there.
+        let sigma = if i < 100 { f64::NAN } else { 0.5 };
+        s.push_with_sigma(x, 10.0, sigma);
+    }
+    assert!(s.sigma_kept() <= 4 * 50);
+    assert!(s.sigma_kept() > 0);
+    let svg = Figure {
+        panels: vec![Panel {
+            series: vec![s],
+            ..Panel::new("holdup [m³]")
+        }],
+        ..Figure::default()
+    }
+    .to_svg();
+    let (_, texts) = check_xml(&svg).unwrap();
+    assert!(texts.iter().any(|t| t == "holdup ± 1σ"), "{texts:?}");
+    assert_eq!(svg.matches("<polygon").count(), 1);
+    // The y axis covers the band (10 ± 0.5).
+    assert!(
+        texts.iter().any(|t| t == "10.5" || t == "10.6"),
+        "{texts:?}"
+    );
+    // Without σ anywhere: no band, the plain name.
+    let mut s = Series::new("level", Color::Blue).with_sigma_band();
+    s.push_with_sigma(0.0, 1.0, f64::NAN);
+    s.push_with_sigma(1.0, 1.0, -1.0);
+    let svg = Figure {
+        panels: vec![Panel {
+            series: vec![s],
+            ..Panel::new("level [m]")
+        }],
+        ..Figure::default()
+    }
+    .to_svg();
+    assert!(!svg.contains("<polygon"));
+    assert!(svg.contains(">level<"));
+}
+
+#[test]
+fn legends_list_only_what_is_drawn_with_fixed_shade_colours() {
+    let mut line = Series::new("flow", Color::Blue);
+    line.push(0.0, 1.0);
+    line.push(10.0, 2.0);
+    let empty_lab = Markers::new("lab result", Color::Black);
+    let panel = |bands: Vec<Band>| Panel {
+        series: vec![line.clone()],
+        markers: vec![empty_lab.clone()],
+        bands,
+        ..Panel::new("flow [m³/h]")
+    };
+    // Two figures with the kinds in opposite order: each kind keeps its
+    // own fill, and the legend follows the table's order.
+    let a = panel(vec![
+        Band::new(1.0, 2.0, Shade::DataGap),
+        Band::new(3.0, 4.0, Shade::MoreOutThanIn),
+    ]);
+    let b = panel(vec![
+        Band::new(1.0, 2.0, Shade::MoreOutThanIn),
+        Band::new(3.0, 4.0, Shade::DataGap),
+    ]);
+    for p in [a, b] {
+        let (items, _) = legend_rows(&p, W - 26.0);
+        let texts: Vec<&str> = items.iter().map(|i| i.text).collect();
+        assert_eq!(
+            texts,
+            ["flow", Shade::DataGap.label(), Shade::MoreOutThanIn.label()]
+        );
+        let svg = Figure {
+            panels: vec![p],
+            ..Figure::default()
+        }
+        .to_svg();
+        assert!(!svg.contains(">lab result<"), "no points, no entry");
+        for s in [Shade::DataGap, Shade::MoreOutThanIn] {
+            // One band and one swatch of each kind, in its fill.
+            assert_eq!(svg.matches(&format!("fill=\"{}\"", s.fill())).count(), 2);
+        }
+    }
+    // Every kind has its own fill and label.
+    let mut fills: Vec<&str> = Shade::ALL.iter().map(|s| s.fill()).collect();
+    fills.sort_unstable();
+    fills.dedup();
+    assert_eq!(fills.len(), Shade::ALL.len());
+}
+
+#[test]
+fn figure_ids_are_prefixed_for_inlining() {
+    let mut line = Series::new("x", Color::Blue);
+    line.push(0.0, 1.0);
+    line.push(1.0, 2.0);
+    let fig = |id: &str| Figure {
+        id: id.into(),
+        panels: vec![Panel {
+            series: vec![line.clone()],
+            ..Panel::new("y")
+        }],
+        ..Figure::default()
+    };
+    let a = fig("holdup-").to_svg();
+    assert!(a.contains("<clipPath id=\"holdup-clip0\">"));
+    assert!(a.contains("clip-path=\"url(#holdup-clip0)\""));
+    assert!(a.contains("<g id=\"holdup-panel0\">"));
+    assert!(fig("").to_svg().contains("<clipPath id=\"clip0\">"));
 }

@@ -261,6 +261,9 @@ pub struct Summary {
     pub corrected_by: &'static str,
     /// Tick, ms.
     pub tick_ms: u32,
+    /// Interval between the rows of `estimates.csv`, ms (a whole number of
+    /// ticks).
+    pub estimates_every_ms: u64,
     /// Zone of the summary's times (IANA name, or `UTC`).
     pub time_zone: String,
     /// First tick.
@@ -540,6 +543,11 @@ impl fmt::Display for Summary {
                 )?;
             }
         }
+        writeln!(
+            f,
+            "Estimates: one row {} of plant time in estimates.csv",
+            super::estimates::interval_words(self.estimates_every_ms, self.tick_ms)
+        )?;
         if !self.warnings.is_empty() {
             writeln!(f, "Warnings (the plant against its log):")?;
             for w in &self.warnings {

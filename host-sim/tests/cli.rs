@@ -3,21 +3,13 @@
 //! `fixtures_are_current` fails if the committed files differ from what the
 //! generators make (run with `HOLDUP_WRITE_FIXTURES=1` to rewrite them).
 
+mod common;
+use common::{out_dir, root};
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
-}
-
 fn fixture(dir: &str) -> PathBuf {
     root().join("fixtures/replay").join(dir)
-}
-
-fn out_dir(name: &str) -> PathBuf {
-    let d = Path::new(env!("CARGO_TARGET_TMPDIR")).join(name);
-    let _ = std::fs::remove_dir_all(&d);
-    d
 }
 
 /// Start of every fixture log: 2026-03-01T05:00:00Z (1772341200 s; hand
@@ -339,21 +331,7 @@ fn fixture_files() -> Vec<(PathBuf, String)> {
 
 #[test]
 fn fixtures_are_current() {
-    let write = std::env::var_os("HOLDUP_WRITE_FIXTURES").is_some();
-    for (path, text) in fixture_files() {
-        if write {
-            std::fs::create_dir_all(path.parent().expect("fixture has a folder")).expect("mkdir");
-            std::fs::write(&path, &text).expect("write fixture");
-        }
-        let on_disk = std::fs::read_to_string(&path).unwrap_or_else(|e| {
-            panic!("{}: {e} (run with HOLDUP_WRITE_FIXTURES=1)", path.display())
-        });
-        assert!(
-            on_disk == text,
-            "{} differs from its generator (run with HOLDUP_WRITE_FIXTURES=1)",
-            path.display()
-        );
-    }
+    common::check_fixtures(fixture_files());
 }
 
 // ------------------------------------------------------------------- runs

@@ -11,21 +11,13 @@
 //! and c_A has a closed form on every piece of constant feed (below), the
 //! reference for every layout of the same data.
 
+mod common;
+use common::{out_dir, root};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
-}
-
 fn fixture(name: &str) -> PathBuf {
     root().join("fixtures/plant-logs").join(name)
-}
-
-fn out_dir(name: &str) -> PathBuf {
-    let d = Path::new(env!("CARGO_TARGET_TMPDIR")).join(name);
-    let _ = std::fs::remove_dir_all(&d);
-    d
 }
 
 /// 2026-03-01T05:00:00Z in epoch seconds (20513 days after 1970-01-01 plus
@@ -228,21 +220,7 @@ fn fixture_files() -> Vec<(PathBuf, String)> {
 
 #[test]
 fn fixtures_are_current() {
-    let write = std::env::var_os("HOLDUP_WRITE_FIXTURES").is_some();
-    for (path, text) in fixture_files() {
-        if write {
-            std::fs::create_dir_all(path.parent().expect("a folder")).expect("mkdir");
-            std::fs::write(&path, &text).expect("write fixture");
-        }
-        let on_disk = std::fs::read_to_string(&path).unwrap_or_else(|e| {
-            panic!("{}: {e} (run with HOLDUP_WRITE_FIXTURES=1)", path.display())
-        });
-        assert!(
-            on_disk == text,
-            "{} differs from its generator (run with HOLDUP_WRITE_FIXTURES=1)",
-            path.display()
-        );
-    }
+    common::check_fixtures(fixture_files());
 }
 
 fn replay(config: &str, log: &str, out: &Path) -> Output {

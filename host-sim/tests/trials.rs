@@ -21,6 +21,8 @@
 //! current (run with `HOLDUP_WRITE_FIXTURES=1` to rewrite it); the logs (about 9 MB
 //! each), the lab file and the truth are generated into `CARGO_TARGET_TMPDIR`.
 
+mod common;
+use common::root;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
@@ -109,10 +111,6 @@ const COVERAGE: f64 = 0.99;
 /// 1 % target.
 const SPIKE_TOL: f64 = 1e-3;
 
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("..")
-}
-
 fn area_m2() -> f64 {
     std::f64::consts::PI * DIAMETER_M * DIAMETER_M / 4.0
 }
@@ -188,21 +186,7 @@ fn fixture_files() -> Vec<(PathBuf, String)> {
 
 #[test]
 fn fixtures_are_current() {
-    let write = std::env::var_os("HOLDUP_WRITE_FIXTURES").is_some();
-    for (path, text) in fixture_files() {
-        if write {
-            std::fs::create_dir_all(path.parent().expect("fixture has a folder")).expect("mkdir");
-            std::fs::write(&path, &text).expect("write fixture");
-        }
-        let on_disk = std::fs::read_to_string(&path).unwrap_or_else(|e| {
-            panic!("{}: {e} (run with HOLDUP_WRITE_FIXTURES=1)", path.display())
-        });
-        assert!(
-            on_disk == text,
-            "{} differs from its generator (run with HOLDUP_WRITE_FIXTURES=1)",
-            path.display()
-        );
-    }
+    common::check_fixtures(fixture_files());
 }
 
 // ------------------------------------------------------------ randomness

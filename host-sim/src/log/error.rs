@@ -99,6 +99,16 @@ pub enum LogError {
         /// The column.
         column: String,
     },
+    /// A tag asked for has no numeric value anywhere in the log (found by
+    /// the order pass, before anything is replayed).
+    NoNumericValue {
+        /// Path.
+        path: String,
+        /// The tag.
+        tag: String,
+        /// Why: its first cell that is not a number, or that no row has it.
+        why: String,
+    },
     /// The same tag was asked for twice.
     DuplicateTag {
         /// Path.
@@ -202,6 +212,12 @@ impl fmt::Display for LogError {
             LogError::DuplicateColumn { path, line, column } => write!(
                 f,
                 "{path}:{line}: column '{column}' appears more than once in the header"
+            ),
+            LogError::NoNumericValue { path, tag, why } => write!(
+                f,
+                "{path}: tag {tag} has no numeric value in the whole log: {why}; the plant \
+                 needs it: check the tag's name, the column, the decimal separator ([log] \
+                 decimal) and the export"
             ),
             LogError::DuplicateTag { path, tag } => {
                 write!(f, "{path}: tag '{tag}' is asked for twice")

@@ -174,6 +174,116 @@ struct FlatRun {
     end: Point,
 }
 
+/// Which tags asked for have a numeric value (order pass): the first
+/// cell that is not one, and a few tags of a long log not asked for.
+struct Survey {
+    numeric: Vec<bool>,
+    cells: Vec<u64>,
+    first_bad: Vec<Option<(u64, String)>>,
+    timed_rows: u64,
+    other_tags: Vec<String>,
+}
+
+/// Most names of other tags kept for a message.
+const OTHER_TAGS_KEPT: usize = 8;
+
+impl Survey {
+    fn new(n: usize) -> Self {
+        Self {
+            numeric: vec![false; n],
+            cells: vec![0; n],
+            first_bad: vec![None; n],
+            timed_rows: 0,
+            other_tags: Vec::new(),
+        }
+    }
+
+    /// A timed row, split in `fields`. Tags already known to be numeric
+    /// are not parsed again, so the cost falls to nothing once every tag
+    /// has shown a number.
+    fn row(&mut self, line: u64, layout: &Layout, fields: &Fields, comma: bool) {
+        self.timed_rows += 1;
+        let look = |k: usize, cell: &[u8], s: &mut Self| {
+            if s.numeric.get(k).copied().unwrap_or(true) {
+                return;
+            }
+            if let Some(c) = s.cells.get_mut(k) {
+                *c += 1;
+            }
+            match parse_value(cell, comma) {
+                Ok(_) => {
+                    if let Some(n) = s.numeric.get_mut(k) {
+                        *n = true;
+                    }
+                }
+                Err(why) => {
+                    if let Some(slot @ None) = s.first_bad.get_mut(k) {
+                        *slot = Some((line, missing_detail(&why, cell)));
+                    }
+                }
+            }
+        };
+        match layout {
+            Layout::Wide { columns, .. } => {
+                for (k, &col) in columns.iter().enumerate() {
+                    look(k, fields.get(col), self);
+                }
+            }
+            Layout::Long {
+                tag_col,
+                value_col,
+                index,
+                ..
+            } => {
+                let tag = fields.get(*tag_col);
+                match index.get(tag) {
+                    Some(&k) => look(k, fields.get(*value_col), self),
+                    None => {
+                        if self.other_tags.len() < OTHER_TAGS_KEPT {
+                            let name = String::from_utf8_lossy(tag).into_owned();
+                            if !self.other_tags.contains(&name) {
+                                self.other_tags.push(name);
+                            }
+                        }
+                    }
+                }
+            }
+        }
+    }
+
+    /// An error for the first tag without a numeric value (none when no
+    /// row had a readable time: the empty log says why).
+    fn check(&self, path: &str, layout: &Layout, stats: &LogStats) -> Result<(), LogError> {
+        if self.timed_rows == 0 {
+            return Ok(());
+        }
+        let Some(k) = self.numeric.iter().position(|n| !n) else {
+            return Ok(());
+        };
+        let tag = stats.tags.get(k).map(|t| t.tag.clone()).unwrap_or_default();
+        let why = match self.first_bad.get(k).cloned().flatten() {
+            Some((line, detail)) => format!(
+                "none of its {} cells is a number (the first, line {line}: {detail})",
+                self.cells.get(k).copied().unwrap_or(0)
+            ),
+            None if matches!(layout, Layout::Long { .. }) => format!(
+                "no row has it in the tag column{}",
+                if self.other_tags.is_empty() {
+                    String::new()
+                } else {
+                    format!("; tags seen: {}", self.other_tags.join(", "))
+                }
+            ),
+            None => "it has no cell in a row with a readable time".to_string(),
+        };
+        Err(LogError::NoNumericValue {
+            path: path.to_string(),
+            tag,
+            why,
+        })
+    }
+}
+
 /// Replay state of one tag.
 #[derive(Debug)]
 struct TagState {
@@ -364,14 +474,20 @@ impl LogReader {
 
     /// Read every remaining line's time (nothing is stored or counted) and
     /// tell the order of the rows.
+    ///
+    /// The same pass makes sure that every tag asked for has a numeric
+    /// value somewhere in a timed row: a tag without one is an error
+    /// ([`LogError::NoNumericValue`]) before anything is replayed.
     fn scan_order(&mut self) -> Result<Order, LogError> {
         let mut order = Order::default();
         let mut last: Option<i64> = None;
         let mut latest = i64::MIN;
+        let mut survey = Survey::new(self.tags.len());
         while let Scanned::Line { line, t, .. } = self.scan_row()? {
             if t == UNTIMED {
                 continue;
             }
+            survey.row(line, &self.layout, &self.fields, self.decimal_comma);
             if let Some(prev) = last {
                 if t > prev {
                     order.steps_forward += 1;
@@ -386,6 +502,7 @@ impl LogReader {
             latest = latest.max(t);
             last = Some(t);
         }
+        survey.check(&self.path, &self.layout, &self.stats)?;
         order.kind = match (order.steps_back, order.steps_forward) {
             (0, _) => OrderKind::InOrder,
             (_, 0) => OrderKind::NewestFirst,

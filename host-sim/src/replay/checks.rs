@@ -14,7 +14,7 @@
 //! | the tick more than [`COARSE_TICK`] times the log's median interval | warning |
 //! | a linear tag that looks exception-stored ([`crate::log::storage`]) | warning |
 //! | lab results reported after the log ends | warning |
-//! | a tag the plant needs with no numeric value in the whole log | error |
+//! | a tag the plant needs with no numeric value in the whole log | error (found before the replay by the log's order pass, `LogError::NoNumericValue`; here for a log read from a stream) |
 //! | usable data (fresh values) for less than [`MIN_USABLE_SHARE`] of the ticks, or more than half the rows rejected | verdict |
 
 use holdup_kernel::Geometry;

@@ -19,10 +19,12 @@
 //! then the sections in the order they are read: `settings` (`[plant]`),
 //! `vessel`, `species`, `streams` (`[[inlet]]`, `[[outlet]]`), `measured`
 //! (`[temperature]`, `[level]`, `[[analyser]]`), `reaction`, `initial`,
-//! `log` (`[log]`, `[tags."…"]`), `estimator` and `plc` (`[plc]`, the
-//! `plc` table of `[tags."…"]`, for a live run).
+//! `log` (`[log]`, `[tags."…"]`), `estimator`, `plc` (`[plc]`, the
+//! `plc` table of `[tags."…"]`, for a live run) and `fit` (`[fit]`);
+//! `unknowns` finds the quantities written with `guess` for `holdup fit`.
 
 mod estimator;
+mod fit;
 mod flow;
 mod initial;
 mod log;
@@ -37,7 +39,11 @@ mod streams;
 mod table;
 #[cfg(test)]
 mod tests;
+mod unknowns;
 mod vessel;
+
+pub use self::fit::{DEFAULT_HOLD_OUT, DEFAULT_LAB_SIGMA, DEFAULT_MAX_EVALUATIONS};
+pub use self::unknowns::{Template, Unknown, UnknownKind};
 
 use std::fmt;
 use std::path::{Path, PathBuf};
@@ -95,8 +101,20 @@ pub fn load(path: &Path) -> Result<Plant, ConfigError> {
 }
 
 /// Check the configuration `text`; `path` is named in errors and stored in
-/// the result.
+/// the result. Unknowns (quantities written with `guess`) are held at
+/// their guess and named in [`Plant::unknowns`].
 pub fn parse(text: &str, path: &Path) -> Result<Plant, ConfigError> {
+    if !text.contains("guess") {
+        return parse_filled(text, path);
+    }
+    let template = Template::parse(text, path)?;
+    let mut plant = parse_filled(&template.filled(&[]), path)?;
+    plant.unknowns = template.unknowns.iter().map(|u| u.name.clone()).collect();
+    Ok(plant)
+}
+
+/// [`parse`] of a file without unknowns (a filled [`Template`]).
+pub fn parse_filled(text: &str, path: &Path) -> Result<Plant, ConfigError> {
     let ctx = Ctx { path, text };
     let doc = toml::de::DeTable::parse(text).map_err(|e| {
         let at = e.span().map_or(0, |s| s.start);
@@ -130,6 +148,7 @@ const TOP_KEYS: &[&str] = &[
     "tags",
     "estimator",
     "plc",
+    "fit",
 ];
 
 /// The whole file, section by section in the order each needs the ones
@@ -161,6 +180,7 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
     let used: Vec<String> = tag_options.iter().map(|t| t.tag.clone()).collect();
     let plc = plc::read(root, &used, tick_ms)?;
 
+    let fit_section = section(root, "fit")?;
     let estimator = match section(root, "estimator")? {
         None => None,
         Some(e) => Some(estimator::read(
@@ -176,6 +196,11 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
             },
         )?),
     };
+
+    let fit = fit::read(
+        fit_section.as_ref(),
+        estimator.as_ref().map(|e| e.lab_sigma),
+    )?;
 
     Ok(Plant {
         path: ctx.path.to_path_buf(),
@@ -197,5 +222,7 @@ fn read_plant(root: &Tbl<'_>) -> R<Plant> {
         log,
         estimator,
         plc,
+        fit,
+        unknowns: Vec::new(),
     })
 }

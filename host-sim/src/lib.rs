@@ -11,13 +11,15 @@
 //! register map; [`serve`] is that Modbus TCP server and [`registers`]
 //! writes the map's documentation; [`live`] polls a PLC over Modbus TCP,
 //! runs that sensor in real time, records the inputs and checks the run
-//! against their replay; [`demo`] generates an invented plant's files;
+//! against their replay; [`fit`] estimates the plant file's unknowns from
+//! its log and lab results; [`demo`] generates an invented plant's files;
 //! [`verify`] holds the analytic cases.
 
 pub mod clock;
 pub mod config;
 pub mod demo;
 pub mod digits;
+pub mod fit;
 pub mod lab;
 pub mod link;
 pub mod live;

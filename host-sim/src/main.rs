@@ -66,6 +66,26 @@ enum Command {
         #[arg(long, short)]
         quiet: bool,
     },
+    /// Estimate the plant file's unknowns (quantities written with `guess`
+    /// instead of `value`) from the log and the lab results: fitted values
+    /// with standard errors, 95 % intervals and correlations, a held-out
+    /// check, plots, and the fitted plant file.
+    ///
+    /// Example: holdup fit --config plant.toml --log log.csv --lab lab.csv --out fit
+    Fit {
+        /// Plant configuration with its unknowns (TOML; see docs/config.md).
+        #[arg(long)]
+        config: PathBuf,
+        /// Historian log (CSV, wide or long).
+        #[arg(long)]
+        log: PathBuf,
+        /// Lab results (CSV: sample_time,species,value,unit[,result_time]).
+        #[arg(long)]
+        lab: Option<PathBuf>,
+        /// Output folder (created if missing).
+        #[arg(long)]
+        out: PathBuf,
+    },
     /// Poll a PLC over Modbus TCP at the plant's tick, run the sensor live,
     /// record the inputs, then replay the recording and check that the live
     /// estimate equals the replay's bit for bit (exit 1 if not).
@@ -339,6 +359,36 @@ fn load_plant(path: &Path) -> Result<holdup_sim::plant::Plant, ExitCode> {
     })
 }
 
+fn run_fit(config: &Path, log: &Path, lab: Option<&Path>, out: &Path) -> ExitCode {
+    let req = holdup_sim::fit::Request {
+        config,
+        log,
+        lab,
+        out_dir: out,
+    };
+    match holdup_sim::fit::fit(config, log, lab) {
+        Ok(f) => match holdup_sim::fit::output::write(&f, &req) {
+            Ok(text) => {
+                print!("{text}");
+                if f.solution.converged {
+                    ExitCode::SUCCESS
+                } else {
+                    eprintln!("holdup fit: the search did not converge (outputs written)");
+                    ExitCode::from(3)
+                }
+            }
+            Err(e) => {
+                eprintln!("error: {e}");
+                ExitCode::from(2)
+            }
+        },
+        Err(e) => {
+            eprintln!("error: {e}");
+            ExitCode::from(2)
+        }
+    }
+}
+
 fn run_registers(config_path: &Path, out: &Path) -> ExitCode {
     let plant = match load_plant(config_path) {
         Ok(p) => p,
@@ -505,6 +555,12 @@ fn main() -> ExitCode {
             every,
             quiet,
         } => run_replay(&config, &log, lab.as_deref(), &out, every.as_deref(), quiet),
+        Command::Fit {
+            config,
+            log,
+            lab,
+            out,
+        } => run_fit(&config, &log, lab.as_deref(), &out),
         Command::Live {
             config,
             out,

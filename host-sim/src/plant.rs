@@ -550,6 +550,23 @@ pub struct Plant {
     pub estimator: Option<Estimator>,
     /// The PLC of a live run (`[plc]`), if configured.
     pub plc: Option<PlcSettings>,
+    /// How `holdup fit` weighs the data (`[fit]`, defaults without it).
+    pub fit: FitOptions,
+    /// The names of the quantities written as unknowns (`guess`), which
+    /// the plant holds at their first guess.
+    pub unknowns: Vec<String>,
+}
+
+/// `[fit]`: how `holdup fit` weighs the data and checks its result.
+#[derive(Clone, Debug, PartialEq)]
+pub struct FitOptions {
+    /// Relative 1σ of a lab analysis (0.02 = 2 %).
+    pub lab_sigma: f64,
+    /// Share of the log's span, at its end, kept out of the fit and used
+    /// to check its prediction (0: none).
+    pub hold_out: f64,
+    /// Most model evaluations one fit may use.
+    pub max_evaluations: u32,
 }
 
 /// Capacities the host replay is compiled for.

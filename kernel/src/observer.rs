@@ -103,6 +103,15 @@ pub struct ObserverSpec<S, const N: usize> {
     /// Standard deviation of the level transmitter, m.
     pub level_sigma: S,
     /// Process noise density of the holdup, m⁶/s (variance added per second).
+    ///
+    /// An unexplained change of holdup (a meter reading a little wrong, an
+    /// unmetered drain or top-up) is taken to leave or enter at the
+    /// vessel's own composition: the noise is added along `[1, c₁, …, c_N]`
+    /// in `[V, n₁, …, n_N]`, so a level reading that corrects the holdup
+    /// moves each amount by `cᵢ·ΔV` and leaves the concentrations as they
+    /// were. (Uncorrelated holdup noise let the correction take out volume
+    /// without its solute: an outlet meter stuck at zero for 17 minutes on
+    /// a slow tank left the concentration 3σ high for hours.)
     pub volume_noise: S,
     /// Process noise density of each amount, mol²/s.
     #[cfg_attr(feature = "serde", serde(with = "crate::serde_arrays"))]
@@ -578,7 +587,22 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
                 p[j][i] = x;
             }
         }
-        p[0][0] += self.spec.volume_noise * h;
+        let qv = self.spec.volume_noise * h;
+        p[0][0] += qv;
+        let c = self.vessel_concentrations();
+        for i in 0..N {
+            let x = c[i] * qv;
+            p[0][1 + i] += x;
+            p[1 + i][0] += x;
+            // Upper triangle, mirrored: `P` stays exactly symmetric.
+            for j in i..N {
+                let y = x * c[j];
+                p[1 + i][1 + j] += y;
+                if j != i {
+                    p[1 + j][1 + i] += y;
+                }
+            }
+        }
         for i in 0..N {
             p[1 + i][1 + i] += self.spec.amount_noise[i] * h;
         }
@@ -624,6 +648,17 @@ impl<S: Scalar, const N: usize, const R: usize, const O: usize, const D: usize, 
             }
         }
         report
+    }
+
+    /// The vessel's concentrations `n/V`, each a finite number ≥ 0 (zero
+    /// where the holdup is not positive or the quotient not finite).
+    fn vessel_concentrations(&self) -> [S; N] {
+        let v = self.vessel.volume();
+        let mut c = [S::ZERO; N];
+        for (ci, ni) in c.iter_mut().zip(self.vessel.amounts().iter()) {
+            *ci = clean(*ni / v);
+        }
+        c
     }
 
     /// Apply `x += k·ν` to the vessel state and the biases.

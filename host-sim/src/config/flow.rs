@@ -6,6 +6,10 @@
 //! tag; with a density tag it is read at every tick, and a density that is
 //! not a positive number is no reading (the sensor holds the last good
 //! flow).
+//!
+//! A metered flow may carry the meter's relative `bias` (0.03: the meter
+//! reads 3 % high), known from a calibration or fitted by `holdup fit`:
+//! the flow is then the reading divided by `1 + bias`.
 
 use toml::de::DeValue;
 
@@ -15,8 +19,57 @@ use super::table::{list, Tbl, R};
 use crate::plant::{DensityTag, Signal};
 use crate::units::{self, Kind, ToSi};
 
+/// Largest meter bias accepted, relative (either sign).
+const MAX_BIAS: f64 = 0.5;
+
 /// The flow at `key` of a stream table, `None` if absent.
 pub(super) fn flow_signal(t: &Tbl<'_>, key: &str, tags: &mut TagUses) -> R<Option<Signal>> {
+    let Some(signal) = unbiased(t, key, tags)? else {
+        return Ok(None);
+    };
+    let Some(v) = t.get(key) else {
+        return Ok(Some(signal));
+    };
+    let DeValue::Table(_) = v.get_ref() else {
+        return Ok(Some(signal));
+    };
+    let c = t.child(key, v, "a flow")?;
+    let Some((b, at)) = c.number("bias")? else {
+        return Ok(Some(signal));
+    };
+    if b.abs() >= MAX_BIAS || !b.is_finite() {
+        return Err(c.err(
+            at,
+            "bias",
+            format!(
+                "the meter's relative bias, between -{MAX_BIAS} and {MAX_BIAS} (0.03: reads 3 % high), got {b}"
+            ),
+        ));
+    }
+    match signal {
+        Signal::Tag {
+            tag,
+            scale,
+            offset,
+            unit,
+            density,
+        } => Ok(Some(Signal::Tag {
+            tag,
+            scale: scale / (1.0 + b),
+            offset: offset / (1.0 + b),
+            unit,
+            density,
+        })),
+        Signal::Constant(_) => Err(c.err(
+            at,
+            "bias",
+            "a bias belongs to a meter: give the flow's tag, not a constant value",
+        )),
+    }
+}
+
+/// The flow at `key` as the meter reads it (any `bias` left to the caller).
+fn unbiased(t: &Tbl<'_>, key: &str, tags: &mut TagUses) -> R<Option<Signal>> {
     let Some(v) = t.get(key) else {
         return Ok(None);
     };
@@ -62,7 +115,7 @@ pub(super) fn flow_signal(t: &Tbl<'_>, key: &str, tags: &mut TagUses) -> R<Optio
             &c,
             Conv::Kind(Kind::MassFlow),
             TagMode::Allowed,
-            &["density"],
+            &["density", "bias"],
         )?,
     )?;
     let Some(dv) = c.get("density") else {
@@ -124,8 +177,17 @@ pub(super) fn flow_signal(t: &Tbl<'_>, key: &str, tags: &mut TagUses) -> R<Optio
 
 /// A volumetric flow, constant or tag.
 fn volumetric(t: &Tbl<'_>, key: &str, tags: &mut TagUses) -> R<Option<Signal>> {
-    let Some(flow) = t.signal(key, Conv::Kind(Kind::Flow), TagMode::Allowed)? else {
-        return Ok(None);
+    let flow = match t.get(key) {
+        None => return Ok(None),
+        Some(v) if matches!(v.get_ref(), DeValue::Table(_)) => {
+            let c = t.child(key, v, "a flow")?;
+            source_with(&c, Conv::Kind(Kind::Flow), TagMode::Allowed, &["bias"])?
+        }
+        // Not a table: the quantity reader says what is wrong.
+        Some(_) => match t.signal(key, Conv::Kind(Kind::Flow), TagMode::Allowed)? {
+            Some(s) => s,
+            None => return Ok(None),
+        },
     };
     let flow = non_negative_source(t.ctx, flow)?;
     Ok(Some(tags.signal(flow, true)))

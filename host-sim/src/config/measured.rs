@@ -2,7 +2,7 @@
 //! the online analysers `[[analyser]]`.
 
 use super::quantity::{Conv, TagMode};
-use super::source::{source_of, Source, TagRef, TagUses};
+use super::source::{source_of, source_with, Source, TagRef, TagUses};
 use super::table::{array_section, list, required_section, section, Tbl, R};
 use crate::plant::{limits, Analyser, Signal, Species};
 use crate::units::{Kind, ToSi};
@@ -25,11 +25,38 @@ pub(super) fn read_temperature(root: &Tbl<'_>, tags: &mut TagUses) -> R<Signal> 
 
 /// `[level]` (optional): a tag only, in a length unit or in `%` of the
 /// transmitter's span (`lower` and `upper`: the levels at 0 % and 100 %,
-/// from the same reference as the vessel's heights).
+/// from the same reference as the vessel's heights), with an optional
+/// `offset` added to every reading (the transmitter's zero above the
+/// vessel's bottom, known from a survey or fitted by `holdup fit`).
 pub(super) fn read_level(root: &Tbl<'_>, tags: &mut TagUses) -> R<Option<Signal>> {
     let Some(l) = section(root, "level")? else {
         return Ok(None);
     };
+    let offset = l.quantity("offset", Conv::Kind(Kind::Length))?;
+    let signal = read_level_reading(&l, tags)?;
+    Ok(match (signal, offset) {
+        (
+            Some(Signal::Tag {
+                tag,
+                scale,
+                offset: zero,
+                unit,
+                density,
+            }),
+            Some(o),
+        ) => Some(Signal::Tag {
+            tag,
+            scale,
+            offset: zero + o.si,
+            unit,
+            density,
+        }),
+        (s, _) => s,
+    })
+}
+
+/// `[level]` without its `offset`.
+fn read_level_reading(l: &Tbl<'_>, tags: &mut TagUses) -> R<Option<Signal>> {
     if l.string("unit")?.map(|(u, _)| u) != Some("%") {
         if let Some(key) = ["lower", "upper"].into_iter().find(|k| l.get(k).is_some()) {
             return Err(l.err(
@@ -39,11 +66,11 @@ pub(super) fn read_level(root: &Tbl<'_>, tags: &mut TagUses) -> R<Option<Signal>
             ));
         }
         return Ok(Some(tags.signal(
-            source_of(&l, Conv::Kind(Kind::Length), TagMode::Only)?,
+            source_with(l, Conv::Kind(Kind::Length), TagMode::Only, &["offset"])?,
             false,
         )));
     }
-    l.check_keys(&["tag", "unit", "lower", "upper"])?;
+    l.check_keys(&["tag", "unit", "lower", "upper", "offset"])?;
     let length = Conv::Kind(Kind::Length);
     let lower = l.req_quantity(
         "lower",

@@ -172,6 +172,33 @@ pub fn generate(dir: &Path) -> std::io::Result<DemoFiles> {
     })
 }
 
+/// The demo plant with the saponification's rate constant and activation
+/// energy marked unknown (first guesses half and three quarters of the
+/// truth), written as `plant-fit.toml` in `dir` for `holdup demo --fit`.
+pub fn write_fit_plant(dir: &Path) -> std::io::Result<std::path::PathBuf> {
+    let known_k = "rate_constant = { value = 0.11, unit = \"L/(mol*s)\" }";
+    let known_ea = "activation_energy = { value = 41, unit = \"kJ/mol\" }";
+    if !PLANT_TOML.contains(known_k) || !PLANT_TOML.contains(known_ea) {
+        return Err(std::io::Error::other(
+            "the demo plant no longer holds the saponification's constants as written here",
+        ));
+    }
+    let text = PLANT_TOML
+        .replacen(
+            known_k,
+            "rate_constant = { guess = 0.05, unit = \"L/(mol*s)\", min = 0.001, max = 10 }",
+            1,
+        )
+        .replacen(
+            known_ea,
+            "activation_energy = { guess = 30, unit = \"kJ/mol\", min = 0, max = 150 }",
+            1,
+        );
+    let path = dir.join("plant-fit.toml");
+    std::fs::write(&path, text)?;
+    Ok(path)
+}
+
 /// Start of the demo in ISO 8601 (for messages).
 pub fn start_iso() -> String {
     iso(START_MS)

@@ -39,6 +39,11 @@ enum Command {
         /// No progress indicator.
         #[arg(long, short)]
         quiet: bool,
+        /// Then fit the saponification's rate constant and activation
+        /// energy (marked unknown in plant-fit.toml) to the demo's log and
+        /// lab results, into the folder's fit/.
+        #[arg(long)]
+        fit: bool,
     },
     /// Replay a historian log through the kernel and write estimates, a
     /// summary and plots.
@@ -525,7 +530,7 @@ fn run_live(
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.command {
-        Command::Demo { out, quiet } => {
+        Command::Demo { out, quiet, fit } => {
             let files = match demo::generate(&out) {
                 Ok(f) => f,
                 Err(e) => {
@@ -538,14 +543,29 @@ fn main() -> ExitCode {
                 out.display(),
                 demo::start_iso()
             );
-            run_replay(
+            let replayed = run_replay(
                 &files.config,
                 &files.log,
                 Some(&files.lab),
                 &out.join("report"),
                 None,
                 quiet,
-            )
+            );
+            if !fit || replayed != ExitCode::SUCCESS {
+                return replayed;
+            }
+            let plant = match demo::write_fit_plant(&out) {
+                Ok(p) => p,
+                Err(e) => {
+                    eprintln!("error: cannot write the demo's fit plant: {e}");
+                    return ExitCode::from(2);
+                }
+            };
+            println!(
+                "\nFitting the saponification's rate constant and activation energy ({}):\n",
+                plant.display()
+            );
+            run_fit(&plant, &files.log, Some(&files.lab), &out.join("fit"))
         }
         Command::Replay {
             config,

@@ -458,6 +458,17 @@ impl<S: Scalar, const N: usize, const D: usize> Replay<'_, S, N, D> {
         )?;
         let mut summary = self.summary(stats, sources, t_end, wall);
         summary.warnings = std::mem::take(&mut self.checks.warnings);
+        if !plant.unknowns.is_empty() {
+            summary.warnings.insert(
+                0,
+                format!(
+                    "the plant file marks {} unknown(s) ({}): the replay used their first \
+                     guesses; `holdup fit` estimates them from the log and the lab results",
+                    plant.unknowns.len(),
+                    plant.unknowns.join(", ")
+                ),
+            );
+        }
         summary.verdict = verdict;
         self.csv.finish()?;
         let events = Events::collect(stats, &self.record);

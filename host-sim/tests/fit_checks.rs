@@ -320,7 +320,11 @@ fn sensitivities_match_the_closed_form() {
     let names: Vec<&str> = template.unknowns.iter().map(|u| u.name.as_str()).collect();
     assert_eq!(
         names,
-        ["feed.feed.A", "decay.rate_constant", "decay.activation_energy"],
+        [
+            "feed.feed.A",
+            "decay.rate_constant",
+            "decay.activation_energy"
+        ],
         "the unknowns in file order"
     );
     // The test's order: k_ref, Ea, c_f; the file's: c_f, k_ref, Ea.
@@ -393,8 +397,18 @@ fn sensitivities_match_the_closed_form() {
 
     assert!(worst_pred < 1e-12, "model vs closed form: {worst_pred:e}");
     for (n, e) in errs.iter().enumerate() {
-        assert!(e[0] < 1e-8, "{}: central differences off by {:e}", labels[n], e[0]);
-        assert!(e[1] < 1e-5, "{}: forward differences off by {:e}", labels[n], e[1]);
+        assert!(
+            e[0] < 1e-8,
+            "{}: central differences off by {:e}",
+            labels[n],
+            e[0]
+        );
+        assert!(
+            e[1] < 1e-5,
+            "{}: forward differences off by {:e}",
+            labels[n],
+            e[1]
+        );
     }
 }
 
@@ -532,6 +546,10 @@ fn intervals_cover_the_truth() {
     );
     assert!(worst_model < 1e-10, "model vs RK4 truth: {worst_model:e}");
     assert!(unconverged.is_empty(), "not converged: {unconverged:?}");
-    assert!(covered[0] >= 90, "k_ref covered in {} of {TRIALS}", covered[0]);
+    assert!(
+        covered[0] >= 90,
+        "k_ref covered in {} of {TRIALS}",
+        covered[0]
+    );
     assert!(covered[1] >= 90, "Ea covered in {} of {TRIALS}", covered[1]);
 }

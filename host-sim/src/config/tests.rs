@@ -793,3 +793,65 @@ fn no_panic_on_truncated_or_mangled_input() {
     }
     assert!(n > 1000);
 }
+
+#[test]
+fn meter_bias_divides_the_reading_and_level_offset_adds() {
+    let text = edit(
+        MINIMAL,
+        "flow = { value = 1, unit = \"m3/h\" }",
+        "flow = { tag = \"FI-1\", unit = \"m3/h\", bias = 0.03 }",
+    )
+        + "\n[level]\ntag = \"LI-1\"\nunit = \"m\"\noffset = { value = 25, unit = \"mm\" }\n";
+    let p = ok(&text);
+    // 1.03 m³/h read by a meter 3 % high is 1 m³/h.
+    let q = p.inlets[0].flow.to_si(1.03);
+    assert!((q - 1.0 / 3600.0).abs() < 1e-15, "{q}");
+    let z = p.level.as_ref().expect("level").to_si(1.0);
+    assert!((z - 1.025).abs() < 1e-15, "{z}");
+
+    let bad = edit(
+        MINIMAL,
+        "flow = { value = 1, unit = \"m3/h\" }",
+        "flow = { value = 1, unit = \"m3/h\", bias = 0.03 }",
+    );
+    check(
+        &err(&bad),
+        &bad,
+        "bias = 0.03",
+        "[[inlet]] flow.bias",
+        &["belongs to a meter"],
+    );
+    let bad = edit(
+        MINIMAL,
+        "flow = { value = 1, unit = \"m3/h\" }",
+        "flow = { tag = \"FI-1\", unit = \"m3/h\", bias = 0.7 }",
+    );
+    check(
+        &err(&bad),
+        &bad,
+        "bias = 0.7",
+        "[[inlet]] flow.bias",
+        &["between -0.5 and 0.5"],
+    );
+}
+
+#[test]
+fn unknowns_are_held_at_their_guess_and_named() {
+    let text = edit(
+        MINIMAL,
+        "volume = { value = 1, unit = \"m3\" }",
+        "volume = { guess = 1.5, unit = \"m3\", min = 0.5 }",
+    ) + "\n[fit]\nhold_out = 0\n";
+    let p = ok(&text);
+    assert_eq!(p.initial.volume, 1.5);
+    assert_eq!(p.unknowns, ["initial.volume"]);
+    assert_eq!(p.fit.hold_out, 0.0);
+    let bad = text.replace("hold_out = 0", "hold_out = 0.9");
+    check(
+        &err(&bad),
+        &bad,
+        "hold_out = 0.9",
+        "[fit] hold_out",
+        &["0 (none) to 0.75"],
+    );
+}

@@ -395,7 +395,7 @@ fn sensitivities_match_the_closed_form() {
         );
     }
 
-    assert!(worst_pred < 1e-12, "model vs closed form: {worst_pred:e}");
+    assert!(worst_pred < 1e-13, "model vs closed form: {worst_pred:e}");
     for (n, e) in errs.iter().enumerate() {
         assert!(
             e[0] < 1e-8,
@@ -544,7 +544,7 @@ fn intervals_cover_the_truth() {
         s2_sum / TRIALS as f64,
         unconverged.len()
     );
-    assert!(worst_model < 1e-10, "model vs RK4 truth: {worst_model:e}");
+    assert!(worst_model < 1e-12, "model vs RK4 truth: {worst_model:e}");
     assert!(unconverged.is_empty(), "not converged: {unconverged:?}");
     assert!(
         covered[0] >= 90,

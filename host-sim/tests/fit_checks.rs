@@ -395,16 +395,22 @@ fn sensitivities_match_the_closed_form() {
         );
     }
 
+    // Measured (x86-64, debug build): the model 1.5e-16 off the closed
+    // form; central differences 1e-11 to 5e-11; forward differences 3.0e-7
+    // (k_ref), 9.6e-9 (Ea), 2.5e-10 (c_f). The forward error of k_ref is
+    // the step's truncation: at steady state c = (q/V)c_f/λ, so
+    // c''/c' = −2/λ in k and the relative error (h/2)|c''/c'| = Δk/λ =
+    // 5.8e-7 · 5.55e-4/1.055e-3 = 3.05e-7, as measured (by hand).
     assert!(worst_pred < 1e-13, "model vs closed form: {worst_pred:e}");
     for (n, e) in errs.iter().enumerate() {
         assert!(
-            e[0] < 1e-8,
+            e[0] < 1e-9,
             "{}: central differences off by {:e}",
             labels[n],
             e[0]
         );
         assert!(
-            e[1] < 1e-5,
+            e[1] < 1e-6,
             "{}: forward differences off by {:e}",
             labels[n],
             e[1]
@@ -544,6 +550,8 @@ fn intervals_cover_the_truth() {
         s2_sum / TRIALS as f64,
         unconverged.len()
     );
+    // Measured: RK4 vs the model 5.7e-15; k_ref 93 and Ea 94 of 100 (with
+    // eight other seed bases, tried once: 91-96 each, 845 of 900 for both).
     assert!(worst_model < 1e-12, "model vs RK4 truth: {worst_model:e}");
     assert!(unconverged.is_empty(), "not converged: {unconverged:?}");
     assert!(

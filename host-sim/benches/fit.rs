@@ -10,13 +10,15 @@
 //! The data: constant volume (in = out = 1.2 m³/h), feed 200 mol/m³, first
 //! order consumption with Arrhenius temperature dependence, temperature
 //! stepping between 40 and 65 °C every 4 h; truth by the exact per-tick
-//! solution (common practice), lab results with 2 % relative noise.
+//! solution (common practice), lab results with 2 % relative noise (the
+//! demo's seeded SplitMix64 generator).
 
 use std::fmt::Write as _;
 use std::path::Path;
 use std::time::Instant;
 
 use holdup_sim::config::{self, Template};
+use holdup_sim::demo::Noise;
 use holdup_sim::fit::{self, data::Data};
 
 const TICKS: usize = 48 * 3600;
@@ -91,23 +93,6 @@ fn temperature_c(k: usize) -> f64 {
     [40.0, 55.0, 65.0, 48.0, 60.0, 44.0][(k / 14_400) % 6]
 }
 
-/// SplitMix64 (Steele, Lea and Flood, 2014) with Box–Muller normals.
-struct Rng(u64);
-
-impl Rng {
-    fn uniform(&mut self) -> f64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        ((z ^ (z >> 31)) >> 11) as f64 / (1u64 << 53) as f64
-    }
-    fn normal(&mut self) -> f64 {
-        let u1 = self.uniform().max(1e-300);
-        (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * self.uniform()).cos()
-    }
-}
-
 fn write_data(dir: &Path) {
     let t0: i64 = 1_780_000_000;
     let area = std::f64::consts::PI * 1.2 * 1.2 / 4.0;
@@ -128,7 +113,7 @@ fn write_data(dir: &Path) {
         c = css + (c - css) * (-(d + kk)).exp();
     }
     std::fs::write(dir.join("log.csv"), log).expect("write log");
-    let mut rng = Rng(21);
+    let mut rng = Noise::new(21);
     let mut lab = String::from("sample_time,species,value,unit\n");
     for i in 0..LABS {
         let k = (i + 1) * TICKS / (LABS + 1);

@@ -17,7 +17,7 @@
 //! [`FD_STEP`] relative to `max(|u|, 1)` during the search, and central
 //! differences in `θ` with step [`SE_STEP`]` · max(|θ|, |guess|)` for the
 //! statistics (the model is run in `f64`; the sensitivity test in
-//! `host-sim/tests/fit.rs` measures both against a closed form).
+//! `host-sim/tests/fit_checks.rs` measures both against a closed form).
 //!
 //! **Statistics** (common practice for weighted nonlinear least squares,
 //! e.g. Bates and Watts, *Nonlinear Regression Analysis*, 1988, ch. 2):

@@ -107,10 +107,7 @@ pub fn parse(text: &str, path: &Path) -> Result<Plant, ConfigError> {
     if !text.contains("guess") {
         return parse_filled(text, path);
     }
-    let template = Template::parse(text, path)?;
-    let mut plant = parse_filled(&template.filled(&[]), path)?;
-    plant.unknowns = template.unknowns.iter().map(|u| u.name.clone()).collect();
-    Ok(plant)
+    Template::parse(text, path)?.plant(&[], path)
 }
 
 /// [`parse`] of a file without unknowns (a filled [`Template`]).

@@ -26,7 +26,7 @@ use std::time::Instant;
 
 use self::data::{Data, Observation};
 use self::solve::{Param, Residuals, Solution, Statistics};
-use crate::config::{self, ConfigError, Template};
+use crate::config::{ConfigError, Template};
 use crate::lab::LabError;
 use crate::log::LogError;
 use crate::plant::Plant;
@@ -143,14 +143,12 @@ impl<'a> Model<'a> {
         &self.data.observations[..self.count]
     }
 
-    /// The plant at `theta`.
-    pub fn plant(&self, theta: &[f64]) -> Result<Plant, ConfigError> {
-        config::parse_filled(&self.template.filled(theta), self.path)
-    }
-
     /// The model's estimate for each observation at `theta`.
     pub fn predictions(&self, theta: &[f64]) -> Result<Vec<f64>, String> {
-        let plant = self.plant(theta).map_err(|e| e.to_string())?;
+        let plant = self
+            .template
+            .plant(theta, self.path)
+            .map_err(|e| e.to_string())?;
         let mut out = Vec::with_capacity(self.count);
         self.data
             .predict(&plant, self.last, &mut out)
@@ -245,7 +243,7 @@ pub fn fit(config_path: &Path, log: &Path, lab: Option<&Path>) -> Result<Fit, Fi
             config_path.display()
         )));
     }
-    let plant = config::parse(&text, config_path)?;
+    let plant = template.plant(&[], config_path)?;
     let data = Data::load(&plant, log, lab)?;
     fit_data(plant, template, data)
 }
@@ -279,19 +277,25 @@ pub fn fit_data(plant: Plant, template: Template, data: Data) -> Result<Fit, Fit
     let max_eval = plant.fit.max_evaluations;
     let mut warnings = Vec::new();
     let mut evaluations = 1;
-    let held_out = hold_out(&plant, &template, &path, &data, &params, &mut warnings)?;
+    let held_out = hold_out(
+        &plant,
+        (&template, &path, &data),
+        &params,
+        &predicted_guess,
+        &mut warnings,
+    )?;
     let start = held_out
         .as_ref()
         .map_or(guesses.clone(), |h| h.theta.clone());
     evaluations += held_out.as_ref().map_or(0, |h| h.evaluations);
     let solution = solve::minimise(&all, &params, &start, max_eval).map_err(FitError::Model)?;
     evaluations += solution.evaluations;
-    let (j, runs) = solve::jacobian(&all, &params, &solution.theta).map_err(FitError::Model)?;
+    let (j, residuals, runs) =
+        solve::jacobian(&all, &params, &solution.theta).map_err(FitError::Model)?;
     evaluations += runs;
-    let residuals = all.residuals(&solution.theta).map_err(FitError::Model)?;
     let stats = solve::statistics(&residuals, &j).map_err(FitError::Setup)?;
     let predicted = all.predictions(&solution.theta).map_err(FitError::Model)?;
-    evaluations += 2;
+    evaluations += 1;
     let wall_s = started.elapsed().as_secs_f64();
     let mut fit = Fit {
         plant,
@@ -313,13 +317,12 @@ pub fn fit_data(plant: Plant, template: Template, data: Data) -> Result<Fit, Fit
 }
 
 /// The held-out check: fit the observations before the split, predict
-/// the rest.
+/// the rest (`at_guess`: every observation's estimate at the guesses).
 fn hold_out(
     plant: &Plant,
-    template: &Template,
-    path: &Path,
-    data: &Data,
+    (template, path, data): (&Template, &Path, &Data),
     params: &[Param],
+    at_guess: &[f64],
     warnings: &mut Vec<String>,
 ) -> Result<Option<HeldOut>, FitError> {
     let share = plant.fit.hold_out;
@@ -345,7 +348,6 @@ fn hold_out(
         .map_err(FitError::Model)?;
     let all = Model::new(template, path, data, data.ticks);
     let at_fit = all.predictions(&sol.theta).map_err(FitError::Model)?;
-    let at_guess = all.predictions(&guesses).map_err(FitError::Model)?;
     let rest = &data.observations[fitted..];
     let rms = |pred: &[f64], rel: bool| -> f64 {
         let s: f64 = rest
@@ -367,10 +369,10 @@ fn hold_out(
         fitted,
         held,
         rms_fitted: rms(&at_fit, false),
-        rms_guess: rms(&at_guess, false),
+        rms_guess: rms(at_guess, false),
         rel_fitted: rms(&at_fit, true),
-        rel_guess: rms(&at_guess, true),
+        rel_guess: rms(at_guess, true),
         theta: sol.theta,
-        evaluations: sol.evaluations + 2,
+        evaluations: sol.evaluations + 1,
     }))
 }

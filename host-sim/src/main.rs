@@ -50,18 +50,8 @@ enum Command {
     ///
     /// Example: holdup replay --config plant.toml --log log.csv --lab lab.csv --out report
     Replay {
-        /// Plant configuration (TOML; see docs/config.md).
-        #[arg(long)]
-        config: PathBuf,
-        /// Historian log (CSV, wide or long).
-        #[arg(long)]
-        log: PathBuf,
-        /// Lab results (CSV: sample_time,species,value,unit[,result_time]).
-        #[arg(long)]
-        lab: Option<PathBuf>,
-        /// Output folder (created if missing).
-        #[arg(long)]
-        out: PathBuf,
+        #[command(flatten)]
+        files: LogFiles,
         /// Write one row of estimates.csv every this much plant time, a
         /// whole number of ticks (for example "10 min"), or "tick" for
         /// every tick; default 1 min (rounded up to whole ticks).
@@ -77,20 +67,7 @@ enum Command {
     /// check, plots, and the fitted plant file.
     ///
     /// Example: holdup fit --config plant.toml --log log.csv --lab lab.csv --out fit
-    Fit {
-        /// Plant configuration with its unknowns (TOML; see docs/config.md).
-        #[arg(long)]
-        config: PathBuf,
-        /// Historian log (CSV, wide or long).
-        #[arg(long)]
-        log: PathBuf,
-        /// Lab results (CSV: sample_time,species,value,unit[,result_time]).
-        #[arg(long)]
-        lab: Option<PathBuf>,
-        /// Output folder (created if missing).
-        #[arg(long)]
-        out: PathBuf,
-    },
+    Fit(LogFiles),
     /// Poll a PLC over Modbus TCP at the plant's tick, run the sensor live,
     /// record the inputs, then replay the recording and check that the live
     /// estimate equals the replay's bit for bit (exit 1 if not).
@@ -139,6 +116,23 @@ enum Command {
         #[arg(long)]
         out: PathBuf,
     },
+}
+
+/// The files of `holdup replay` and `holdup fit`.
+#[derive(clap::Args)]
+struct LogFiles {
+    /// Plant configuration (TOML; see docs/config.md).
+    #[arg(long)]
+    config: PathBuf,
+    /// Historian log (CSV, wide or long).
+    #[arg(long)]
+    log: PathBuf,
+    /// Lab results (CSV: sample_time,species,value,unit[,result_time]).
+    #[arg(long)]
+    lab: Option<PathBuf>,
+    /// Output folder (created if missing).
+    #[arg(long)]
+    out: PathBuf,
 }
 
 /// The options of `holdup serve`.
@@ -568,19 +562,18 @@ fn main() -> ExitCode {
             run_fit(&plant, &files.log, Some(&files.lab), &out.join("fit"))
         }
         Command::Replay {
-            config,
-            log,
-            lab,
-            out,
+            files: f,
             every,
             quiet,
-        } => run_replay(&config, &log, lab.as_deref(), &out, every.as_deref(), quiet),
-        Command::Fit {
-            config,
-            log,
-            lab,
-            out,
-        } => run_fit(&config, &log, lab.as_deref(), &out),
+        } => run_replay(
+            &f.config,
+            &f.log,
+            f.lab.as_deref(),
+            &f.out,
+            every.as_deref(),
+            quiet,
+        ),
+        Command::Fit(f) => run_fit(&f.config, &f.log, f.lab.as_deref(), &f.out),
         Command::Live {
             config,
             out,

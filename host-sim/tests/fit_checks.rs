@@ -358,7 +358,7 @@ fn sensitivities_match_the_closed_form() {
         .collect();
 
     // Central differences of the statistics.
-    let (jac, _) = solve::jacobian(&model, &params, &theta).expect("jacobian");
+    let (jac, _, _) = solve::jacobian(&model, &params, &theta).expect("jacobian");
     // Forward differences with the search's step: u → u + FD_STEP·max(|u|, 1),
     // divided by the θ step that makes.
     let r0 = model.residuals(&theta).expect("residuals");

@@ -67,6 +67,13 @@ fn demo_fit_recovers_the_saponification_constants_and_replays() {
     }
     assert_eq!(fit["converged"], true);
     assert_eq!(fit["residuals"], 18);
+    // The log reader's findings come with the fit: the demo's log has no
+    // rejected row, and the caustic meter's NaN run is counted.
+    let findings = fit["log_findings"].to_string();
+    assert!(
+        findings.contains("0 rejected") && findings.contains("FI-101: 120 missing values"),
+        "{findings}"
+    );
     // The held-out check: the fit to the first 9 h predicts the last 3 h
     // far better than the guesses do.
     let h = &fit["held_out"];

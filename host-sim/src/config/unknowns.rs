@@ -19,6 +19,7 @@ use toml::de::{DeTable, DeValue};
 
 use super::table::{number_of, type_name, Ctx, Value};
 use super::ConfigError;
+use crate::plant::Plant;
 
 /// What an unknown is, for the plain-words checks of a fit.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -138,6 +139,15 @@ impl Template {
             text: text.to_string(),
             unknowns,
         })
+    }
+
+    /// The plant with the unknowns at `values` (in their units, file
+    /// order; the guesses where `values` is shorter), checked by the
+    /// normal reader and named in [`Plant::unknowns`].
+    pub fn plant(&self, values: &[f64], path: &Path) -> Result<Plant, ConfigError> {
+        let mut plant = super::parse_filled(&self.filled(values), path)?;
+        plant.unknowns = self.unknowns.iter().map(|u| u.name.clone()).collect();
+        Ok(plant)
     }
 
     /// The file with each unknown's table replaced by its value in

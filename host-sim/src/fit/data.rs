@@ -61,7 +61,8 @@ pub struct Data {
     pub labs_outside: usize,
     /// The vessel temperature's range over the log, K (finite readings).
     pub temperature_range: Option<(f64, f64)>,
-    /// The log reader's findings.
+    /// The log reader's findings (rows read and rejected, faults per
+    /// tag), reported with the fit.
     pub stats: LogStats,
 }
 

@@ -73,6 +73,7 @@ struct FitOut {
     lab_results: usize,
     analyser_readings: usize,
     residuals: usize,
+    log_findings: Vec<String>,
     parameters: Vec<ParamOut>,
     correlation: Vec<Vec<f64>>,
     chi2: f64,
@@ -198,6 +199,7 @@ fn json(fit: &Fit, req: &Request<'_>, clock: &Clock, files: Vec<String>) -> FitO
         lab_results: labs,
         analyser_readings: d.observations.len() - labs,
         residuals: d.observations.len(),
+        log_findings: d.stats.describe(),
         parameters: fit
             .params
             .iter()
@@ -347,8 +349,9 @@ fn figures(fit: &Fit, clock: &Clock) -> Result<Vec<(&'static str, Figure)>, FitE
         .collect();
     let guesses: Vec<f64> = fit.params.iter().map(|p| p.guess).collect();
     for (which, theta) in [(0, &guesses), (1, &fit.solution.theta)] {
-        let plant = super::Model::new(&fit.template, &fit.plant.path, d, d.ticks)
-            .plant(theta)
+        let plant = fit
+            .template
+            .plant(theta, &fit.plant.path)
             .map_err(FitError::Config)?;
         let mut sink = Vec::new();
         d.predict_with(&plant, d.ticks - 1, &mut sink, &mut |k, c| {
@@ -459,6 +462,9 @@ fn text(fit: &Fit, clock: &Clock, files: &[String]) -> String {
         d.tick_ms,
         d.observations.len() - labs
     );
+    for line in d.stats.describe() {
+        let _ = writeln!(s, "  log: {line}");
+    }
     let _ = writeln!(
         s,
         "  search: Levenberg-Marquardt {}; {} model runs in {:.2} s; chi2/(m - p) = {:.3} (m = {}, p = {})",

@@ -259,12 +259,13 @@ pub fn minimise<M: Residuals>(
 }
 
 /// The Jacobian of the residuals in `θ` by central differences (one-sided
-/// where a step would cross a bound), and the model runs it took.
+/// where a step would cross a bound), the residuals at `theta`, and the
+/// model runs it took.
 pub fn jacobian<M: Residuals>(
     model: &M,
     params: &[Param],
     theta: &[f64],
-) -> Result<(DMatrix<f64>, usize), String> {
+) -> Result<(DMatrix<f64>, Vec<f64>, usize), String> {
     let r0 = model.residuals(theta)?;
     let m = r0.len();
     let mut j = DMatrix::zeros(m, params.len());
@@ -316,7 +317,7 @@ pub fn jacobian<M: Residuals>(
             j[(i, c)] = x;
         }
     }
-    Ok((j, runs))
+    Ok((j, r0, runs))
 }
 
 /// Statistics at an optimum.
@@ -343,6 +344,10 @@ pub struct Statistics {
 /// Relative eigenvalue of `JᵀJ` (in scaled parameters) below which a
 /// direction counts as flat.
 pub const FLAT_EIGENVALUE: f64 = 1e-10;
+
+/// A parameter takes part in a flat direction when its component of the
+/// unit vector exceeds this.
+pub const FLAT_COMPONENT: f64 = 0.1;
 
 /// The statistics of residuals `r` with Jacobian `j` (in `θ`).
 pub fn statistics(r: &[f64], j: &DMatrix<f64>) -> Result<Statistics, String> {
@@ -391,7 +396,7 @@ pub fn statistics(r: &[f64], j: &DMatrix<f64>) -> Result<Statistics, String> {
     let mut se = vec![f64::NAN; p];
     for c in 0..p {
         let var = s2 * inv[(c, c)] * scale[c] * scale[c];
-        let undetermined = flat.iter().any(|(v, _)| v[c].abs() > 0.1);
+        let undetermined = flat.iter().any(|(v, _)| v[c].abs() > FLAT_COMPONENT);
         if var > 0.0 && !undetermined {
             se[c] = var.sqrt();
         }
@@ -490,7 +495,7 @@ mod tests {
         let s = minimise(&d, &ps, &[1.0, 0.2], 400).unwrap();
         assert!(s.converged, "{}", s.termination);
         assert!((s.theta[0] - 2.0).abs() < 1e-8 && (s.theta[1] - 0.7).abs() < 1e-8);
-        let (j, _) = jacobian(&d, &ps, &s.theta).unwrap();
+        let (j, _, _) = jacobian(&d, &ps, &s.theta).unwrap();
         // ∂r/∂a = e^{−bx}/σ, by hand.
         for (i, x) in d.x.iter().enumerate() {
             let exact = (-0.7 * x).exp() / 0.01;
@@ -507,8 +512,9 @@ mod tests {
             }
         }
         let ps = [param("a", 1.0, None, None), param("z", 1.0, None, None)];
-        let (j, _) = jacobian(&Ignores, &ps, &[2.0, 1.0]).unwrap();
-        let st = statistics(&Ignores.residuals(&[2.0, 1.0]).unwrap(), &j).unwrap();
+        let (j, r, _) = jacobian(&Ignores, &ps, &[2.0, 1.0]).unwrap();
+        assert_eq!(r, Ignores.residuals(&[2.0, 1.0]).unwrap());
+        let st = statistics(&r, &j).unwrap();
         assert_eq!(st.flat.len(), 1);
         assert!(st.se[1].is_nan() && st.se[0].is_finite());
         // Student's t for 3 degrees of freedom, 0.975: 3.182 (any table).

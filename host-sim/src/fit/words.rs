@@ -2,6 +2,7 @@
 //! cannot separate, directions the data do not see, values at a bound,
 //! a search that did not converge, intervals wider than the value.
 
+use super::solve::FLAT_COMPONENT;
 use super::Fit;
 use crate::config::UnknownKind;
 
@@ -63,7 +64,7 @@ pub fn warnings(fit: &Fit) -> Vec<String> {
         let involved: Vec<&str> = v
             .iter()
             .zip(ps)
-            .filter(|(x, _)| x.abs() > 0.1)
+            .filter(|(x, _)| x.abs() > FLAT_COMPONENT)
             .map(|(_, p)| p.name.as_str())
             .collect();
         let what = if involved.len() == 1 {
